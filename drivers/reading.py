@@ -1,0 +1,84 @@
+"""What a driver hands upward: timestamped readings and scanned club tags.
+
+Data flows one way: transport -> driver -> ``Reading`` -> capture engine -> measurement.
+A reading is a plain frozen value; nothing below this module knows about the service.
+"""
+
+from __future__ import annotations
+
+import enum
+from dataclasses import dataclass
+
+
+class Flag(enum.Flag):
+    """Status a device reports beside its value (empty when the device says nothing)."""
+
+    NONE = 0
+    STABLE = enum.auto()  # the device itself declares the value settled
+    MOTION = enum.auto()  # the device declares it in motion / dynamic
+    OVERLOAD = enum.auto()  # above capacity: the value must never be used as a weight
+    UNDERLOAD = enum.auto()  # below the zero range
+    AT_ZERO = enum.auto()  # stable at centre of zero
+    NET = enum.auto()  # value is net (tared); absent means gross
+    FAULT = enum.auto()  # device reports an internal fault
+    NEEDS_CALIBRATION = enum.auto()
+    NEEDS_ZERO = enum.auto()
+
+
+class ValueKind(enum.Enum):
+    """Whether ``Reading.value`` is a mass in grams or raw ADC counts of a load-cell channel."""
+
+    GRAMS = "g"
+    COUNTS = "counts"
+
+
+@dataclass(frozen=True, slots=True)
+class Reading:
+    """One value from one channel of one device.
+
+    ``value`` is already normalised to grams when ``kind`` is GRAMS (the driver converts oz, lb,
+    kg ... through ``daemon.units``); ``device_unit`` keeps what the device actually sent.
+    ``t_mono_s`` is the host's monotonic clock on arrival (or the recording's clock in replay).
+    """
+
+    device: str
+    channel: int
+    t_mono_s: float
+    value: float
+    kind: ValueKind
+    device_unit: str
+    flags: Flag
+    raw: bytes
+    seq: int | None = None
+    device_time_s: float | None = None
+
+    @property
+    def usable(self) -> bool:
+        """False for overload, underload and fault frames: they must never become a weight."""
+        return not (self.flags & (Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT))
+
+
+@dataclass(frozen=True, slots=True)
+class ClubTag:
+    """A club id read by a barcode/QR scanner (or typed by an operator)."""
+
+    device: str
+    t_mono_s: float
+    club_id: str
+    raw: bytes
+
+
+@dataclass(frozen=True, slots=True)
+class DeviceInfo:
+    """Identity a device announced (hello line, USB descriptor, ...), kept with calibrations."""
+
+    device: str
+    model: str = ""
+    firmware: str = ""
+    serial_number: str = ""
+    channels: int = 1
+    sample_rate_hz: float | None = None
+    adc_bits: int | None = None
+
+
+DriverOutput = Reading | ClubTag | DeviceInfo
