@@ -17,7 +17,7 @@ from daemon.measurement import Measurement
 from drivers.reading import Flag
 
 
-class CaptureState(str, enum.Enum):
+class CaptureState(enum.StrEnum):
     EMPTY = "empty"  # nothing on the supports, armed
     SETTLING = "settling"  # load detected, waiting for every channel to settle
     CAPTURED = "captured"  # stable window taken; a measurement was produced
@@ -26,7 +26,7 @@ class CaptureState(str, enum.Enum):
     OFFLINE = "offline"  # a device of the geometry is not connected
 
 
-class AlarmKind(str, enum.Enum):
+class AlarmKind(enum.StrEnum):
     OUT_OF_SPEC = "out_of_spec"
     DEVICE_OFFLINE = "device_offline"
     OVERLOAD = "overload"

@@ -13,7 +13,7 @@ from uuid import UUID
 from pydantic import BaseModel, ConfigDict, Field
 
 
-class Verdict(str, enum.Enum):
+class Verdict(enum.StrEnum):
     PASS = "pass"
     NEAR_LIMIT = "near_limit"  # inside the spec but within the warning margin of a limit
     FAIL = "fail"
@@ -62,7 +62,9 @@ class Measurement(BaseModel):
     club_id: str | None = None
     job: str | None = None
     spec: str | None = None
-    club: str | None = Field(default=None, description="club of the set the spec applied, e.g. '7i'")
+    club: str | None = Field(
+        default=None, description="club of the set the spec applied, e.g. '7i'"
+    )
     total_weight_g: float
     total_weight_g_u: float | None = None
     balance_point_in: float

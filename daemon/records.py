@@ -1,4 +1,4 @@
-"""Records kept beside measurements: channel calibrations (ISO/IEC 17025-style) and alarm history."""
+"""Records kept beside measurements: channel calibrations (ISO/IEC 17025 style)."""
 
 from __future__ import annotations
 
@@ -34,7 +34,9 @@ class CalibrationRecord(BaseModel):
     zero_counts: float
     counts_per_g: float
     reference: ReferenceMass | None = None
-    result_g: float | None = Field(default=None, description="what the channel read on the reference")
+    result_g: float | None = Field(
+        default=None, description="what the channel read on the reference"
+    )
     residual_g: float | None = Field(default=None, description="result minus the reference value")
     passed: bool = True
     next_due: date | None = None

@@ -57,7 +57,9 @@ def mass_to_g(value: float, unit: str) -> float:
     try:
         return value * _MASS_TO_G[u]
     except KeyError:
-        raise UnitError(f"unknown mass unit {unit!r}; expected one of {sorted(_MASS_TO_G)}") from None
+        raise UnitError(
+            f"unknown mass unit {unit!r}; expected one of {sorted(_MASS_TO_G)}"
+        ) from None
 
 
 def g_to_mass(value_g: float, unit: str) -> float:

@@ -11,7 +11,8 @@ from pathlib import Path
 
 
 def find_mosquitto() -> str:
-    for candidate in (shutil.which("mosquitto"), "/usr/sbin/mosquitto", "/usr/local/sbin/mosquitto"):
+    candidates = (shutil.which("mosquitto"), "/usr/sbin/mosquitto", "/usr/local/sbin/mosquitto")
+    for candidate in candidates:
         if candidate and Path(candidate).exists():
             return candidate
     raise RuntimeError(
