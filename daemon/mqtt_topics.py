@@ -1,0 +1,323 @@
+"""MQTT topic names and payload models: the contract between the service and every MQTT client.
+
+Everything a station publishes lives under one subtree, ``<root>/<station>/``, so a clustered
+broker can place a station's traffic by prefix and a consumer can subscribe to one station or,
+with ``+`` in the station level, to all of them. ``docs/mqtt.md`` documents each topic; its JSON
+Schemas are generated from the models below (``heft schema``), never written by hand.
+
+Topics (``S`` = ``<root>/<station>``):
+
+====================================  ====  ======  =========================================
+topic                                 QoS   retain  payload
+====================================  ====  ======  =========================================
+S/status                              1     yes     ``online`` / ``offline`` (last will)
+S/measurement                         1     no      :class:`~daemon.measurement.Measurement`
+S/last_measurement                    1     yes     :class:`~daemon.measurement.Measurement`
+S/live/<device>/<index>               0     no      :class:`LiveReadingPayload`
+S/capture                             1     yes     :class:`CaptureStatePayload`
+S/device/<device>                     1     yes     :class:`DeviceStatusPayload`
+S/alarms                              1     yes     :class:`AlarmsPayload` (all active alarms)
+S/alarm/event                         1     no      :class:`AlarmPayload` (each change)
+S/cmd                                 1     no      a command (``daemon.command_api``)
+S/cmd/reply                           1     no      :class:`~daemon.command_api.Reply`
+====================================  ====  ======  =========================================
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Final, Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+from daemon.events import (
+    Alarm,
+    AlarmKind,
+    CaptureState,
+    CaptureStateChanged,
+    DeviceStatus,
+    LiveReading,
+)
+from drivers.reading import Flag
+
+ONLINE: Final = "online"
+OFFLINE: Final = "offline"
+Availability = Literal["online", "offline"]
+
+# Names of the leaf topics below a station's subtree (also used by ``parse_topic``).
+STATUS: Final = "status"
+MEASUREMENT: Final = "measurement"
+MEASUREMENT_LAST: Final = "last_measurement"
+LIVE: Final = "live"
+CAPTURE: Final = "capture"
+DEVICE: Final = "device"
+ALARMS: Final = "alarms"
+ALARM_EVENT: Final = "alarm/event"
+CMD: Final = "cmd"
+CMD_REPLY: Final = "cmd/reply"
+
+
+class TopicError(ValueError):
+    """A name that cannot be used as a topic level (empty, or holding '/', '+', '#' or NUL)."""
+
+
+def check_level(name: str, what: str) -> str:
+    """Return ``name`` if it is usable as one topic level, else raise naming ``what``."""
+    if not name or any(c in name for c in "/+#\x00"):
+        raise TopicError(
+            f"{what} {name!r} cannot be an MQTT topic level: it must be non-empty and "
+            "contain no '/', '+', '#' or NUL"
+        )
+    return name
+
+
+def _check_root(root: str) -> str:
+    levels = root.split("/")
+    for level in levels:
+        check_level(level, "topic_root level")
+    return root
+
+
+def _channel_levels(channel: str) -> str:
+    """'<device>/<index>' -> the same two levels, each checked."""
+    parts = channel.split("/")
+    if len(parts) != 2:
+        raise TopicError(f"channel {channel!r}: expected '<device>/<index>'")
+    return "/".join(check_level(p, "channel part") for p in parts)
+
+
+@dataclass(frozen=True, slots=True)
+class Topics:
+    """Topic builder for one station (``station='+'`` builds subscription filters for all)."""
+
+    root: str
+    station: str
+
+    def __post_init__(self) -> None:
+        _check_root(self.root)
+        if self.station != "+":
+            check_level(self.station, "station")
+
+    @classmethod
+    def all_stations(cls, root: str) -> Topics:
+        """Filters matching every station under ``root`` (e.g. ``heft/+/measurement``)."""
+        return cls(root, "+")
+
+    @property
+    def base(self) -> str:
+        return f"{self.root}/{self.station}"
+
+    @property
+    def subtree(self) -> str:
+        """Filter for everything the station publishes and receives."""
+        return f"{self.base}/#"
+
+    @property
+    def status(self) -> str:
+        return f"{self.base}/{STATUS}"
+
+    @property
+    def measurement(self) -> str:
+        return f"{self.base}/{MEASUREMENT}"
+
+    @property
+    def measurement_last(self) -> str:
+        return f"{self.base}/{MEASUREMENT_LAST}"
+
+    def live(self, channel: str) -> str:
+        """Topic of one channel's live readings; ``channel`` is '<device>/<index>'."""
+        return f"{self.base}/{LIVE}/{_channel_levels(channel)}"
+
+    @property
+    def live_all(self) -> str:
+        return f"{self.base}/{LIVE}/#"
+
+    @property
+    def capture(self) -> str:
+        return f"{self.base}/{CAPTURE}"
+
+    def device(self, device: str) -> str:
+        return f"{self.base}/{DEVICE}/{check_level(device, 'device')}"
+
+    @property
+    def device_all(self) -> str:
+        return f"{self.base}/{DEVICE}/+"
+
+    @property
+    def alarms(self) -> str:
+        return f"{self.base}/{ALARMS}"
+
+    @property
+    def alarm_event(self) -> str:
+        return f"{self.base}/{ALARM_EVENT}"
+
+    @property
+    def cmd(self) -> str:
+        return f"{self.base}/{CMD}"
+
+    @property
+    def cmd_reply(self) -> str:
+        return f"{self.base}/{CMD_REPLY}"
+
+
+@dataclass(frozen=True, slots=True)
+class TopicMatch:
+    """What ``parse_topic`` found: the station, the leaf kind and any trailing levels."""
+
+    station: str
+    kind: str  # one of the leaf names above, e.g. "last_measurement" or "live"
+    rest: str = ""  # "<device>/<index>" for live, "<device>" for device, else ""
+
+
+_FIXED_LEAVES: Final = (
+    STATUS,
+    MEASUREMENT,
+    MEASUREMENT_LAST,
+    CAPTURE,
+    ALARMS,
+    ALARM_EVENT,
+    CMD,
+    CMD_REPLY,
+)
+
+
+def parse_topic(root: str, topic: str) -> TopicMatch | None:
+    """Classify a received topic; None when it is not one of heft's topics under ``root``."""
+    prefix = root + "/"
+    if not topic.startswith(prefix):
+        return None
+    station, _, leaf = topic[len(prefix) :].partition("/")
+    if not station or not leaf:
+        return None
+    if leaf in _FIXED_LEAVES:
+        return TopicMatch(station, leaf)
+    head, _, rest = leaf.partition("/")
+    if head == LIVE and rest.count("/") == 1:
+        return TopicMatch(station, LIVE, rest)
+    if head == DEVICE and rest and "/" not in rest:
+        return TopicMatch(station, DEVICE, rest)
+    return None
+
+
+# --------------------------------------------------------------------------------------------
+# Payload models. Measurements go out as ``daemon.measurement.Measurement`` unchanged.
+
+
+class _Payload(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="ignore")
+
+
+def flag_names(flags: Flag) -> list[str]:
+    """Flag set -> sorted lower-case names, e.g. ['net', 'stable'] (empty for NONE)."""
+    return sorted((f.name or "").lower() for f in Flag if f.value and f in flags)
+
+
+class LiveReadingPayload(_Payload):
+    """One live reading of one channel (throttled, QoS 0; a missed one is simply superseded)."""
+
+    station: str
+    channel: str = Field(description="'<device>/<channel index>'")
+    value_g: float
+    flags: list[str] = Field(default_factory=list, description="lower-case Flag names")
+    t_mono_s: float = Field(description="the service's monotonic clock: for intervals only")
+    time_utc: datetime
+
+    @classmethod
+    def from_event(cls, ev: LiveReading, now_utc: datetime) -> LiveReadingPayload:
+        return cls(
+            station=ev.station,
+            channel=ev.channel,
+            value_g=ev.value_g,
+            flags=flag_names(ev.flags),
+            t_mono_s=ev.t_mono_s,
+            time_utc=now_utc,
+        )
+
+
+class CaptureStatePayload(_Payload):
+    """The capture engine's state (retained: a new subscriber sees the current state)."""
+
+    station: str
+    state: CaptureState
+    detail: str = ""
+    time_utc: datetime
+
+    @classmethod
+    def from_event(cls, ev: CaptureStateChanged, now_utc: datetime) -> CaptureStatePayload:
+        return cls(station=ev.station, state=ev.state, detail=ev.detail, time_utc=now_utc)
+
+
+class DeviceStatusPayload(_Payload):
+    """One device's connection and health (retained per device)."""
+
+    station: str
+    device: str
+    connected: bool
+    port: str
+    sample_rate_hz: float | None = None
+    frame_errors: int = 0
+    last_value: float | None = None
+    model: str = ""
+    firmware: str = ""
+    time_utc: datetime
+
+    @classmethod
+    def from_event(cls, ev: DeviceStatus, now_utc: datetime) -> DeviceStatusPayload:
+        return cls(
+            station=ev.station,
+            device=ev.device,
+            connected=ev.connected,
+            port=ev.port,
+            sample_rate_hz=ev.sample_rate_hz,
+            frame_errors=ev.frame_errors,
+            last_value=ev.last_value,
+            model=ev.model,
+            firmware=ev.firmware,
+            time_utc=now_utc,
+        )
+
+
+class AlarmPayload(_Payload):
+    """One alarm, raised or cleared."""
+
+    station: str
+    key: str = Field(description="'<kind>:<source>', the id used by the ack_alarm command")
+    kind: AlarmKind
+    source: str = Field(description="device name, channel or 'station'")
+    active: bool
+    acknowledged: bool = False
+    message: str
+    time_utc: datetime
+
+    @classmethod
+    def from_alarm(cls, alarm: Alarm) -> AlarmPayload:
+        return cls(
+            station=alarm.station,
+            key=alarm.key,
+            kind=alarm.kind,
+            source=alarm.source,
+            active=alarm.active,
+            acknowledged=alarm.acknowledged,
+            message=alarm.message,
+            time_utc=alarm.time_utc,
+        )
+
+    def to_alarm(self) -> Alarm:
+        return Alarm(
+            station=self.station,
+            kind=self.kind,
+            source=self.source,
+            active=self.active,
+            message=self.message,
+            time_utc=self.time_utc,
+            acknowledged=self.acknowledged,
+        )
+
+
+class AlarmsPayload(_Payload):
+    """Every alarm active at the station now (retained; an empty list means all clear)."""
+
+    station: str
+    time_utc: datetime
+    active: list[AlarmPayload] = Field(default_factory=list)
