@@ -1,0 +1,158 @@
+"""The numbers heft reports for one club, with expanded uncertainties, from any bench method.
+
+Every ``*_u`` field is the EXPANDED uncertainty U = 2*u_c (k = 2, GUM) propagated from the
+inputs' standard uncertainties, or None when no input carried one. ``moment_g_in`` is about the
+requested fulcrum (14 in unless stated); the swing weight is always read on the 14-inch
+Lorythmic scale. A swing weight off the A0..G10 scale keeps its points and gets the label
+``'<A0'`` or ``'>G10'`` so it is never mistaken for an on-scale value.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import asdict, dataclass
+
+from daemon.physics.statics import (
+    ClubStatics,
+    balance_point_from_moment_in,
+    lever_statics,
+    two_support_statics,
+)
+from daemon.physics.swingweight import (
+    FULCRUM_14_IN,
+    G_IN_PER_POINT,
+    describe_points,
+    moment_about_g_in,
+    points_from_moment_g_in,
+)
+from daemon.physics.uncertainty import UncertainValue, any_uncertain, expanded, propagate
+from daemon.units import g_in_to_oz_in
+
+
+@dataclass(frozen=True)
+class ClubNumbers:
+    total_weight_g: float
+    total_weight_g_u: float | None
+    balance_point_in: float
+    balance_point_in_u: float | None
+    moment_g_in: float
+    moment_g_in_u: float | None
+    moment_oz_in: float
+    moment_oz_in_u: float | None
+    swingweight: str
+    swingweight_points: float
+    swingweight_points_u: float | None
+
+    def as_dict(self) -> dict[str, object]:
+        """Field name -> value; the keys match daemon.measurement.Measurement."""
+        return asdict(self)
+
+
+def _club_numbers(
+    statics: Callable[..., ClubStatics],
+    inputs: Mapping[str, UncertainValue],
+    fulcrum_in: float,
+) -> ClubNumbers:
+    """Propagate each reported quantity separately from the independent raw inputs."""
+
+    def weight(**v: float) -> float:
+        return statics(**v).total_weight_g
+
+    def balance(**v: float) -> float:
+        return statics(**v).balance_point_in
+
+    def moment(**v: float) -> float:
+        return statics(**v).moment_g_in
+
+    def moment_14(**v: float) -> float:
+        s = statics(**v)
+        if fulcrum_in == FULCRUM_14_IN:
+            return s.moment_g_in
+        return moment_about_g_in(s.total_weight_g, s.balance_point_in, FULCRUM_14_IN)
+
+    carried = any_uncertain(inputs.values())
+
+    def report_u(x: UncertainValue, scale: float = 1.0) -> float | None:
+        return expanded(x.u) * scale if carried else None
+
+    w = propagate(weight, inputs)
+    bp = propagate(balance, inputs)
+    m = propagate(moment, inputs)
+    m14 = propagate(moment_14, inputs)
+    points = points_from_moment_g_in(m14.value)
+    return ClubNumbers(
+        total_weight_g=w.value,
+        total_weight_g_u=report_u(w),
+        balance_point_in=bp.value,
+        balance_point_in_u=report_u(bp),
+        moment_g_in=m.value,
+        moment_g_in_u=report_u(m),
+        moment_oz_in=g_in_to_oz_in(m.value),
+        moment_oz_in_u=report_u(m, g_in_to_oz_in(1.0)),
+        swingweight=describe_points(points),
+        swingweight_points=points,
+        swingweight_points_u=report_u(m14, 1.0 / G_IN_PER_POINT),
+    )
+
+
+def club_from_two_supports(
+    reading_a_g: UncertainValue,
+    position_a_in: UncertainValue,
+    reading_b_g: UncertainValue,
+    position_b_in: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> ClubNumbers:
+    """Club numbers from two tared support readings at positions from the butt stop."""
+
+    def statics(
+        reading_a_g: float, position_a_in: float, reading_b_g: float, position_b_in: float
+    ) -> ClubStatics:
+        return two_support_statics(
+            reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in
+        )
+
+    inputs = {
+        "reading_a_g": reading_a_g,
+        "position_a_in": position_a_in,
+        "reading_b_g": reading_b_g,
+        "position_b_in": position_b_in,
+    }
+    statics(**{k: x.value for k, x in inputs.items()})  # raise StaticsError on impossible input
+    return _club_numbers(statics, inputs, fulcrum_in)
+
+
+def club_from_lever(
+    force_g: UncertainValue,
+    lever_arm_in: UncertainValue,
+    total_weight_g: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> ClubNumbers:
+    """Club numbers from a fulcrum-lever beam (force at a lever arm) plus a separate weighing."""
+
+    def statics(force_g: float, lever_arm_in: float, total_weight_g: float) -> ClubStatics:
+        return lever_statics(force_g, lever_arm_in, total_weight_g, fulcrum_in)
+
+    inputs = {"force_g": force_g, "lever_arm_in": lever_arm_in, "total_weight_g": total_weight_g}
+    statics(**{k: x.value for k, x in inputs.items()})
+    return _club_numbers(statics, inputs, fulcrum_in)
+
+
+def club_from_weight_and_balance(
+    total_weight_g: UncertainValue,
+    balance_point_in: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> ClubNumbers:
+    """Club numbers from a total weight and a balance point found on a knife edge."""
+
+    def statics(total_weight_g: float, balance_point_in: float) -> ClubStatics:
+        moment = moment_about_g_in(total_weight_g, balance_point_in, fulcrum_in)
+        # Round trip through the moment keeps one definition of BP and its error message.
+        return ClubStatics(
+            total_weight_g,
+            balance_point_from_moment_in(moment, total_weight_g, fulcrum_in),
+            moment,
+        )
+
+    inputs = {"total_weight_g": total_weight_g, "balance_point_in": balance_point_in}
+    statics(**{k: x.value for k, x in inputs.items()})
+    return _club_numbers(statics, inputs, fulcrum_in)

@@ -1,0 +1,97 @@
+"""First-order uncertainty propagation after the GUM (JCGM 100:2008), for independent inputs.
+
+Every ``u`` here is a STANDARD uncertainty (one standard deviation); :func:`expanded` turns it
+into the expanded uncertainty U = k*u that results report (k = 2).
+"""
+
+from __future__ import annotations
+
+import math
+import statistics
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass
+
+COVERAGE_FACTOR_K = 2.0
+# Central-difference step as a fraction of each input's own standard uncertainty: small enough
+# that curvature does not leak into the slope, large enough to stay clear of rounding noise.
+_STEP_PER_U = 1e-3
+
+
+@dataclass(frozen=True)
+class UncertainValue:
+    """A value with its standard uncertainty (same unit as the value)."""
+
+    value: float
+    u: float = 0.0
+
+    def __post_init__(self) -> None:
+        if not math.isfinite(self.value):
+            raise ValueError(f"value must be a finite number, not {self.value!r}")
+        if not math.isfinite(self.u) or self.u < 0:
+            raise ValueError(f"standard uncertainty must be finite and >= 0, not {self.u!r}")
+
+    @property
+    def has_u(self) -> bool:
+        return self.u > 0
+
+
+def resolution_u(step: float) -> float:
+    """Standard uncertainty of one reading from a display step d: d/sqrt(12) (GUM F.2.2.1)."""
+    if step < 0:
+        raise ValueError(f"display step must be >= 0, not {step}")
+    return step / math.sqrt(12.0)
+
+
+def net_resolution_u(step: float) -> float:
+    """A net reading (load minus zero, each rounded to d): d/sqrt(6) (GUM, two resolutions)."""
+    return math.sqrt(2.0) * resolution_u(step)
+
+
+def repeatability_u(samples: Iterable[float]) -> float:
+    """Type A standard uncertainty of the mean of repeated readings: s/sqrt(n) (GUM 4.2.3)."""
+    data = list(samples)
+    if len(data) < 2:
+        raise ValueError("repeatability needs at least two readings")
+    return statistics.stdev(data) / math.sqrt(len(data))
+
+
+def combine_u(*components: float) -> float:
+    """Root sum of squares of independent standard uncertainties."""
+    return math.sqrt(math.fsum(c * c for c in components))
+
+
+def expanded(u: float, k: float = COVERAGE_FACTOR_K) -> float:
+    """Expanded uncertainty U = k*u."""
+    return k * u
+
+
+def sensitivity(
+    func: Callable[..., float], values: Mapping[str, float], name: str, step: float
+) -> float:
+    """df/d(name) at ``values`` by a central difference of half-width ``step``."""
+    up = dict(values)
+    down = dict(values)
+    up[name] = values[name] + step
+    down[name] = values[name] - step
+    return (func(**up) - func(**down)) / (2.0 * step)
+
+
+def propagate(func: Callable[..., float], inputs: Mapping[str, UncertainValue]) -> UncertainValue:
+    """y = func(**values) with u_c(y)^2 = sum (df/dx_i)^2 u(x_i)^2 (GUM eq. 10, independent inputs).
+
+    Sensitivity coefficients come from central differences with a step of 1e-3 of each input's
+    own standard uncertainty. Inputs with u = 0 contribute nothing and are not perturbed.
+    """
+    values = {name: x.value for name, x in inputs.items()}
+    y = float(func(**values))
+    terms = []
+    for name, x in inputs.items():
+        if x.u > 0:
+            c = sensitivity(func, values, name, x.u * _STEP_PER_U)
+            terms.append(c * x.u)
+    return UncertainValue(y, combine_u(*terms))
+
+
+def any_uncertain(inputs: Iterable[UncertainValue]) -> bool:
+    """True when at least one input carries an uncertainty."""
+    return any(x.has_u for x in inputs)
