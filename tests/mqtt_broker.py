@@ -35,6 +35,7 @@ class Broker:
     port: int
     process: subprocess.Popen[bytes] | None = None
     host: str = "127.0.0.1"
+    extra_conf: str = ""  # appended to the config; later lines override (e.g. "persistence true")
 
     @property
     def url(self) -> str:
@@ -48,6 +49,7 @@ class Broker:
             "persistence false\n"
             "max_queued_messages 100000\n"
             f"log_dest file {self.workdir / 'mosquitto.log'}\n"
+            f"{self.extra_conf}"
         )
         self.process = subprocess.Popen(
             [find_mosquitto(), "-c", str(conf)],
