@@ -14,6 +14,8 @@ GRAMS_PER_KILOGRAM: Final = 1000.0
 GRAMS_PER_TROY_OUNCE: Final = 31.1034768  # exact
 GRAMS_PER_GRAIN: Final = 0.06479891  # exact
 GRAMS_PER_CARAT: Final = 0.2  # metric carat, exact
+GRAMS_PER_PENNYWEIGHT: Final = 24 * GRAMS_PER_GRAIN  # 1 dwt = 24 grains = 1/20 troy oz, exact
+GRAMS_PER_METRIC_TON: Final = 1_000_000.0  # tonne, exact
 MM_PER_INCH: Final = 25.4  # exact
 CM_PER_INCH: Final = 2.54
 
@@ -26,6 +28,8 @@ _MASS_TO_G: Final[dict[str, float]] = {
     "ozt": GRAMS_PER_TROY_OUNCE,
     "gr": GRAMS_PER_GRAIN,
     "ct": GRAMS_PER_CARAT,
+    "dwt": GRAMS_PER_PENNYWEIGHT,
+    "t": GRAMS_PER_METRIC_TON,
 }
 _LENGTH_TO_IN: Final[dict[str, float]] = {
     "in": 1.0,
@@ -84,6 +88,11 @@ def in_to_mm(value_in: float) -> float:
 
 def mm_to_in(value_mm: float) -> float:
     return value_mm / MM_PER_INCH
+
+
+def m_to_in(value_m: float) -> float:
+    """Metres (or m/s^2) to inches (or in/s^2)."""
+    return value_m * 1000.0 / MM_PER_INCH
 
 
 def g_to_oz(value_g: float) -> float:

@@ -48,61 +48,77 @@ class ClubNumbers:
         return asdict(self)
 
 
-def _club_numbers(
-    statics: Callable[..., ClubStatics],
-    inputs: Mapping[str, UncertainValue],
-    fulcrum_in: float,
-) -> ClubNumbers:
+@dataclass(frozen=True)
+class BenchInputs:
+    """One bench method: its statics as a function of named raw inputs, and those inputs.
+
+    Keeping the raw inputs (not the derived W and BP) lets every later quantity, corrections
+    included, be propagated from independent readings as the GUM requires.
+    """
+
+    statics: Callable[..., ClubStatics]
+    inputs: Mapping[str, UncertainValue]
+    fulcrum_in: float = FULCRUM_14_IN
+
+    @property
+    def carries_u(self) -> bool:
+        return any_uncertain(self.inputs.values())
+
+    def evaluate(self) -> ClubStatics:
+        """The statics at the input values (raises StaticsError on impossible input)."""
+        return self.statics(**{k: x.value for k, x in self.inputs.items()})
+
+    def propagate(self, quantity: Callable[[ClubStatics], float]) -> UncertainValue:
+        """Value and standard uncertainty of ``quantity(statics)`` over the raw inputs."""
+
+        def f(**v: float) -> float:
+            return quantity(self.statics(**v))
+
+        return propagate(f, self.inputs)
+
+    def report_u(self, x: UncertainValue, scale: float = 1.0) -> float | None:
+        """Expanded uncertainty (k = 2) of ``x`` times ``scale``; None when no input carried one."""
+        return expanded(x.u) * scale if self.carries_u else None
+
+
+def moment_14in_g_in(statics: ClubStatics, fulcrum_in: float) -> float:
+    """Moment about the 14-inch fulcrum whatever fulcrum ``statics`` was taken about."""
+    if fulcrum_in == FULCRUM_14_IN:
+        return statics.moment_g_in
+    return moment_about_g_in(statics.total_weight_g, statics.balance_point_in, FULCRUM_14_IN)
+
+
+def club_numbers(bench: BenchInputs) -> ClubNumbers:
     """Propagate each reported quantity separately from the independent raw inputs."""
-
-    def weight(**v: float) -> float:
-        return statics(**v).total_weight_g
-
-    def balance(**v: float) -> float:
-        return statics(**v).balance_point_in
-
-    def moment(**v: float) -> float:
-        return statics(**v).moment_g_in
-
-    def moment_14(**v: float) -> float:
-        s = statics(**v)
-        if fulcrum_in == FULCRUM_14_IN:
-            return s.moment_g_in
-        return moment_about_g_in(s.total_weight_g, s.balance_point_in, FULCRUM_14_IN)
-
-    carried = any_uncertain(inputs.values())
-
-    def report_u(x: UncertainValue, scale: float = 1.0) -> float | None:
-        return expanded(x.u) * scale if carried else None
-
-    w = propagate(weight, inputs)
-    bp = propagate(balance, inputs)
-    m = propagate(moment, inputs)
-    m14 = propagate(moment_14, inputs)
+    bench.evaluate()
+    w = bench.propagate(lambda s: s.total_weight_g)
+    bp = bench.propagate(lambda s: s.balance_point_in)
+    m = bench.propagate(lambda s: s.moment_g_in)
+    m14 = bench.propagate(lambda s: moment_14in_g_in(s, bench.fulcrum_in))
     points = points_from_moment_g_in(m14.value)
     return ClubNumbers(
         total_weight_g=w.value,
-        total_weight_g_u=report_u(w),
+        total_weight_g_u=bench.report_u(w),
         balance_point_in=bp.value,
-        balance_point_in_u=report_u(bp),
+        balance_point_in_u=bench.report_u(bp),
         moment_g_in=m.value,
-        moment_g_in_u=report_u(m),
+        moment_g_in_u=bench.report_u(m),
         moment_oz_in=g_in_to_oz_in(m.value),
-        moment_oz_in_u=report_u(m, g_in_to_oz_in(1.0)),
+        moment_oz_in_u=bench.report_u(m, g_in_to_oz_in(1.0)),
         swingweight=describe_points(points),
         swingweight_points=points,
-        swingweight_points_u=report_u(m14, 1.0 / G_IN_PER_POINT),
+        swingweight_points_u=bench.report_u(m14, 1.0 / G_IN_PER_POINT),
     )
 
 
-def club_from_two_supports(
+def two_supports_bench(
     reading_a_g: UncertainValue,
     position_a_in: UncertainValue,
     reading_b_g: UncertainValue,
     position_b_in: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
-) -> ClubNumbers:
-    """Club numbers from two tared support readings at positions from the butt stop."""
+) -> BenchInputs:
+    """Two tared support readings at positions from the butt stop."""
 
     def statics(
         reading_a_g: float, position_a_in: float, reading_b_g: float, position_b_in: float
@@ -117,8 +133,55 @@ def club_from_two_supports(
         "reading_b_g": reading_b_g,
         "position_b_in": position_b_in,
     }
-    statics(**{k: x.value for k, x in inputs.items()})  # raise StaticsError on impossible input
-    return _club_numbers(statics, inputs, fulcrum_in)
+    return BenchInputs(statics, inputs, fulcrum_in)
+
+
+def lever_bench(
+    force_g: UncertainValue,
+    lever_arm_in: UncertainValue,
+    total_weight_g: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> BenchInputs:
+    """A fulcrum-lever beam (force at a lever arm from the pivot) plus a separate weighing."""
+
+    def statics(force_g: float, lever_arm_in: float, total_weight_g: float) -> ClubStatics:
+        return lever_statics(force_g, lever_arm_in, total_weight_g, fulcrum_in)
+
+    inputs = {"force_g": force_g, "lever_arm_in": lever_arm_in, "total_weight_g": total_weight_g}
+    return BenchInputs(statics, inputs, fulcrum_in)
+
+
+def weight_and_balance_bench(
+    total_weight_g: UncertainValue,
+    balance_point_in: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> BenchInputs:
+    """A total weight and a balance point found on a knife edge."""
+
+    def statics(total_weight_g: float, balance_point_in: float) -> ClubStatics:
+        moment = moment_about_g_in(total_weight_g, balance_point_in, fulcrum_in)
+        # Through the moment so one definition of BP (and its error message) serves all methods.
+        return ClubStatics(
+            total_weight_g,
+            balance_point_from_moment_in(moment, total_weight_g, fulcrum_in),
+            moment,
+        )
+
+    inputs = {"total_weight_g": total_weight_g, "balance_point_in": balance_point_in}
+    return BenchInputs(statics, inputs, fulcrum_in)
+
+
+def club_from_two_supports(
+    reading_a_g: UncertainValue,
+    position_a_in: UncertainValue,
+    reading_b_g: UncertainValue,
+    position_b_in: UncertainValue,
+    fulcrum_in: float = FULCRUM_14_IN,
+) -> ClubNumbers:
+    """Club numbers from two tared support readings at positions from the butt stop."""
+    return club_numbers(
+        two_supports_bench(reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in)
+    )
 
 
 def club_from_lever(
@@ -127,14 +190,8 @@ def club_from_lever(
     total_weight_g: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
 ) -> ClubNumbers:
-    """Club numbers from a fulcrum-lever beam (force at a lever arm) plus a separate weighing."""
-
-    def statics(force_g: float, lever_arm_in: float, total_weight_g: float) -> ClubStatics:
-        return lever_statics(force_g, lever_arm_in, total_weight_g, fulcrum_in)
-
-    inputs = {"force_g": force_g, "lever_arm_in": lever_arm_in, "total_weight_g": total_weight_g}
-    statics(**{k: x.value for k, x in inputs.items()})
-    return _club_numbers(statics, inputs, fulcrum_in)
+    """Club numbers from a fulcrum-lever beam plus a separate weighing."""
+    return club_numbers(lever_bench(force_g, lever_arm_in, total_weight_g, fulcrum_in))
 
 
 def club_from_weight_and_balance(
@@ -142,17 +199,5 @@ def club_from_weight_and_balance(
     balance_point_in: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
 ) -> ClubNumbers:
-    """Club numbers from a total weight and a balance point found on a knife edge."""
-
-    def statics(total_weight_g: float, balance_point_in: float) -> ClubStatics:
-        moment = moment_about_g_in(total_weight_g, balance_point_in, fulcrum_in)
-        # Round trip through the moment keeps one definition of BP and its error message.
-        return ClubStatics(
-            total_weight_g,
-            balance_point_from_moment_in(moment, total_weight_g, fulcrum_in),
-            moment,
-        )
-
-    inputs = {"total_weight_g": total_weight_g, "balance_point_in": balance_point_in}
-    statics(**{k: x.value for k, x in inputs.items()})
-    return _club_numbers(statics, inputs, fulcrum_in)
+    """Club numbers from a total weight and a balance point."""
+    return club_numbers(weight_and_balance_bench(total_weight_g, balance_point_in, fulcrum_in))
