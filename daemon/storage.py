@@ -23,6 +23,7 @@ commit takes milliseconds on a healthy disk, but longer on SD cards).
 
 from __future__ import annotations
 
+import contextlib
 import sqlite3
 import threading
 from collections.abc import Iterator, Sequence
@@ -163,15 +164,10 @@ class Store:
                     f"understands ({SCHEMA_VERSION}); use a newer heft"
                 )
             for target in range(version + 1, SCHEMA_VERSION + 1):
-                self._conn.execute("BEGIN IMMEDIATE")
-                try:
+                with self._transaction():
                     for statement in _split_sql(MIGRATIONS[target - 1]):
                         self._conn.execute(statement)
                     self._conn.execute(f"PRAGMA user_version={target}")
-                    self._conn.execute("COMMIT")
-                except BaseException:
-                    self._conn.execute("ROLLBACK")
-                    raise
 
     def close(self) -> None:
         with self._lock:
@@ -192,16 +188,21 @@ class Store:
 
     def _write(self, what: str, statements: Sequence[tuple[str, Sequence[Any]]]) -> None:
         """Run statements as one transaction (all or nothing)."""
-        with self._lock, self._op(what):
-            self._conn.execute("BEGIN IMMEDIATE")
-            try:
-                for sql, params in statements:
-                    self._conn.execute(sql, params)
-                self._conn.execute("COMMIT")
-            except BaseException:
-                if self._conn.in_transaction:
-                    self._conn.execute("ROLLBACK")
-                raise
+        with self._lock, self._op(what), self._transaction():
+            for sql, params in statements:
+                self._conn.execute(sql, params)
+
+    @contextlib.contextmanager
+    def _transaction(self) -> Iterator[None]:
+        """BEGIN IMMEDIATE ... COMMIT, rolled back on any error (caller holds the lock)."""
+        self._conn.execute("BEGIN IMMEDIATE")
+        try:
+            yield
+            self._conn.execute("COMMIT")
+        except BaseException:
+            if self._conn.in_transaction:
+                self._conn.execute("ROLLBACK")
+            raise
 
     def pragma(self, name: str) -> Any:
         """Read one PRAGMA value (e.g. 'journal_mode', 'synchronous', 'user_version')."""
@@ -246,8 +247,7 @@ class Store:
                 raise StorageError(
                     f"{self.path}: measurement {m.id} is already stored with different content"
                 )
-            self._conn.execute("BEGIN IMMEDIATE")
-            try:
+            with self._transaction():
                 self._conn.execute(
                     "INSERT INTO measurements"
                     " (id, station, seq, time_utc, job, spec, club_id, verdict, body)"
@@ -268,11 +268,6 @@ class Store:
                     "INSERT INTO outbox (measurement_id, created_utc) VALUES (?, ?)",
                     (str(m.id), utc_text(datetime.now(UTC))),
                 )
-                self._conn.execute("COMMIT")
-            except BaseException:
-                if self._conn.in_transaction:
-                    self._conn.execute("ROLLBACK")
-                raise
 
     def next_seq(self, station: str) -> int:
         """The next unused sequence number of ``station`` (1 for a new station)."""
