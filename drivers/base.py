@@ -25,6 +25,7 @@ from __future__ import annotations
 import abc
 import logging
 import math
+import re
 from collections import deque
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -83,6 +84,27 @@ class TransportError(DriverError, OSError):
 
 class DeviceSilentError(TransportError):
     """The port is open but the device has sent nothing for too long."""
+
+
+_DECIMAL: Final = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)")
+_INTEGER: Final = re.compile(r"[+-]?\d+")
+
+
+def parse_decimal(text: str, what: str) -> float:
+    """A plain signed decimal (no exponent, nan, inf, ``_``) or FrameError naming ``what``."""
+    if not _DECIMAL.fullmatch(text):
+        raise FrameError(f"{what} {text!r} is not a decimal number")
+    return float(text)
+
+
+def parse_int(text: str, what: str, low: int, high: int) -> int:
+    """A signed decimal integer within [low, high] or FrameError naming ``what``."""
+    if not _INTEGER.fullmatch(text):
+        raise FrameError(f"{what} {text!r} is not an integer")
+    value = int(text)
+    if not low <= value <= high:
+        raise FrameError(f"{what} {value} outside {low}..{high}")
+    return value
 
 
 @dataclass(frozen=True, slots=True)
@@ -169,6 +191,7 @@ class Driver(abc.ABC):
         self._burst_errors = 0
         self._burst_logged_at: float = -math.inf
         self._noise_warned = False
+        self._last_unit = "g"  # last unit the device sent, for frames that carry none
 
     # -- configuration ---------------------------------------------------------------------
 
@@ -275,6 +298,15 @@ class Driver(abc.ABC):
             device=self.device, channel=channel, t_mono_s=t_mono_s, value=value_g,
             kind=ValueKind.GRAMS, device_unit=unit, flags=flags, raw=raw,
         )
+
+    def _accept_unit(self, unit: str, allowed: frozenset[str]) -> str:
+        """Check a unit field against the protocol's list; remember it as the current unit."""
+        if unit not in allowed:
+            raise FrameError(f"unit {unit!r} is not one of {', '.join(sorted(allowed))}")
+        if unit != self._last_unit:
+            log.info("device %r now sends %s (was %s)", self.device, unit, self._last_unit)
+        self._last_unit = unit
+        return unit
 
     # -- host to device --------------------------------------------------------------------
 
