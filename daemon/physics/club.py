@@ -76,6 +76,31 @@ class BenchInputs:
 
         return propagate(f, self.inputs)
 
+    def propagate_with(
+        self,
+        extra: Mapping[str, UncertainValue],
+        quantity: Callable[[ClubStatics, Mapping[str, float]], float],
+    ) -> UncertainValue:
+        """Like :meth:`propagate` for a quantity that also needs further inputs (a position, a
+        period...), given as ``extra`` and passed to ``quantity`` by name."""
+        clash = set(extra) & set(self.inputs)
+        if clash:
+            raise ValueError(f"extra inputs {sorted(clash)} clash with the bench's own")
+
+        def f(**v: float) -> float:
+            mine = {k: v[k] for k in self.inputs}
+            theirs = {k: v[k] for k in extra}
+            return quantity(self.statics(**mine), theirs)
+
+        return propagate(f, {**self.inputs, **extra})
+
+    def report_u_with(
+        self, extra: Mapping[str, UncertainValue], x: UncertainValue, scale: float = 1.0
+    ) -> float | None:
+        """Expanded uncertainty of ``x`` when the bench or ``extra`` carried one, else None."""
+        carried = self.carries_u or any_uncertain(extra.values())
+        return expanded(x.u) * scale if carried else None
+
     def report_u(self, x: UncertainValue, scale: float = 1.0) -> float | None:
         """Expanded uncertainty (k = 2) of ``x`` times ``scale``; None when no input carried one."""
         return expanded(x.u) * scale if self.carries_u else None

@@ -7,7 +7,7 @@ Positive dm adds mass, negative removes it. New W' = W + dm and BP' = (W*BP + dm
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
 from daemon.physics.club import BenchInputs
@@ -19,7 +19,7 @@ from daemon.physics.swingweight import (
     moment_about_g_in,
     points_from_moment_g_in,
 )
-from daemon.physics.uncertainty import UncertainValue, any_uncertain, expanded, propagate
+from daemon.physics.uncertainty import UncertainValue
 
 # A mass placed this close to the fulcrum barely moves the swing weight; asking for it is a
 # mistake on the bench rather than a correction (0.05 in ~ 1.3 mm).
@@ -98,31 +98,20 @@ def correction_numbers(
     correction = correct_to_target(
         statics.total_weight_g, statics.balance_point_in, target_points, position_in.value
     )
-    pos_key = "_correction_position_in"
-    inputs = {**bench.inputs, pos_key: position_in}
+    extra = {"correction_position_in": position_in}
 
-    def corrected(**v: float) -> Correction:
-        position = v.pop(pos_key)
-        s: ClubStatics = bench.statics(**v)
-        return correct_to_target(s.total_weight_g, s.balance_point_in, target_points, position)
+    def corrected(s: ClubStatics, v: Mapping[str, float]) -> Correction:
+        return correct_to_target(
+            s.total_weight_g, s.balance_point_in, target_points, v["correction_position_in"]
+        )
 
-    def mass(**v: float) -> float:
-        return corrected(**v).mass_g
-
-    def weight(**v: float) -> float:
-        return corrected(**v).corrected_total_weight_g
-
-    def balance(**v: float) -> float:
-        return corrected(**v).corrected_balance_point_in
-
-    carried = any_uncertain(inputs.values())
-
-    def u_of(f: Callable[..., float]) -> float | None:
-        return expanded(propagate(f, inputs).u) if carried else None
+    def u_of(field: Callable[[Correction], float]) -> float | None:
+        x = bench.propagate_with(extra, lambda s, v: field(corrected(s, v)))
+        return bench.report_u_with(extra, x)
 
     return CorrectionNumbers(
         correction=correction,
-        mass_g_u=u_of(mass),
-        corrected_total_weight_g_u=u_of(weight),
-        corrected_balance_point_in_u=u_of(balance),
+        mass_g_u=u_of(lambda c: c.mass_g),
+        corrected_total_weight_g_u=u_of(lambda c: c.corrected_total_weight_g),
+        corrected_balance_point_in_u=u_of(lambda c: c.corrected_balance_point_in),
     )

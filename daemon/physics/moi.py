@@ -16,7 +16,11 @@ give the local value for better than about 0.3 %.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 
+from daemon.physics.club import BenchInputs
+from daemon.physics.statics import ClubStatics
+from daemon.physics.uncertainty import UncertainValue
 from daemon.units import g_in2_to_kg_cm2, m_to_in
 
 STANDARD_GRAVITY_M_S2 = 9.80665  # exact by definition (3rd CGPM, 1901)
@@ -144,3 +148,30 @@ def period_for_moi_s(
         )
     t0 = 2.0 * math.pi * math.sqrt(i_pivot / (total_weight_g * _gravity_in_s2(gravity_m_s2) * d))
     return t0 * large_swing_factor(amplitude_rad)
+
+
+def moi_about_butt_numbers(
+    bench: BenchInputs,
+    pivot_in: UncertainValue,
+    period_s: UncertainValue,
+    *,
+    gravity_m_s2: float = STANDARD_GRAVITY_M_S2,
+    amplitude_rad: float = 0.0,
+) -> tuple[float, float | None]:
+    """MOI about the butt (g*in^2) of the club read by ``bench``, with its expanded uncertainty
+    (k = 2) propagated from the bench's inputs, the pivot position and the period (None when no
+    input carried one)."""
+    extra = {"pivot_in": pivot_in, "period_s": period_s}
+
+    def moi(s: ClubStatics, v: Mapping[str, float]) -> float:
+        return moi_about_butt_g_in2(
+            s.total_weight_g,
+            s.balance_point_in,
+            v["pivot_in"],
+            v["period_s"],
+            gravity_m_s2=gravity_m_s2,
+            amplitude_rad=amplitude_rad,
+        )
+
+    x = bench.propagate_with(extra, moi)
+    return x.value, bench.report_u_with(extra, x)

@@ -1,0 +1,698 @@
+"""``heft calc``: club numbers from bench readings or parts, a correction to a target, MOI.
+
+All value options are taken as text and parsed here, so a bad value gets exactly one stderr line
+naming the option and the form expected (exit status 2), like argparse's own errors.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+import tomllib
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, TextIO
+
+from daemon.physics.club import (
+    BenchInputs,
+    ClubNumbers,
+    club_numbers,
+    lever_bench,
+    two_supports_bench,
+    weight_and_balance_bench,
+)
+from daemon.physics.correction import CorrectionError, CorrectionNumbers, correction_numbers
+from daemon.physics.moi import PendulumError, moi_about_butt_numbers
+from daemon.physics.predict import (
+    DEFAULT_GRIP_CG_IN,
+    DEFAULT_HEAD_CG_FROM_END_IN,
+    BuildError,
+    ClubBuild,
+    End,
+    Part,
+    Shaft,
+    change_length,
+    statics_of_parts,
+)
+from daemon.physics.statics import StaticsError
+from daemon.physics.swingweight import (
+    FULCRUM_14_IN,
+    SwingweightLabelError,
+    SwingweightRangeError,
+    label_from_points,
+    moment_12in_from_14in_oz_in,
+    moment_oz_in_from_points,
+    points_from_label,
+    points_in_range,
+)
+from daemon.physics.uncertainty import (
+    UncertainValue,
+    combine_u,
+    net_resolution_u,
+)
+from daemon.units import (
+    UnitError,
+    g_in2_to_kg_cm2,
+    g_to_oz,
+    in_to_mm,
+    parse_quantity,
+)
+
+PROG = "heft calc"
+# Where a correction goes when neither --at nor --length says: the head of a mid-length iron.
+DEFAULT_CORRECTION_AT_IN = 36.0
+
+
+class CalcInputError(ValueError):
+    """Bad command-line input; the message names the option and the form expected."""
+
+
+# --- parsing helpers ------------------------------------------------------------------------
+
+
+def _quantity(args: argparse.Namespace, dest: str, kind: str) -> float | None:
+    text = getattr(args, dest)
+    if text is None:
+        return None
+    option = "--" + dest.replace("_", "-")
+    try:
+        value = parse_quantity(text, kind=kind)
+    except UnitError as err:
+        raise CalcInputError(f"{option}: {err}") from None
+    if not math.isfinite(value):
+        raise CalcInputError(f"{option}: {text!r} is not a finite {kind}")
+    return value
+
+
+def _mass(args: argparse.Namespace, dest: str) -> float | None:
+    return _quantity(args, dest, "mass")
+
+
+def _length(args: argparse.Namespace, dest: str) -> float | None:
+    return _quantity(args, dest, "length")
+
+
+def _number(args: argparse.Namespace, dest: str, what: str) -> float | None:
+    text = getattr(args, dest)
+    if text is None:
+        return None
+    option = "--" + dest.replace("_", "-")
+    try:
+        value = float(text)
+    except ValueError:
+        raise CalcInputError(f"{option}: {text!r} is not {what}") from None
+    if not math.isfinite(value):
+        raise CalcInputError(f"{option}: {text!r} is not {what}")
+    return value
+
+
+def _non_negative(option: str, value: float | None) -> float:
+    if value is None:
+        return 0.0
+    if value < 0:
+        raise CalcInputError(f"{option}: an uncertainty must be >= 0, not {value:g}")
+    return value
+
+
+def _given(args: argparse.Namespace, *dests: str) -> list[str]:
+    return [d for d in dests if getattr(args, d) is not None]
+
+
+def _require(args: argparse.Namespace, method: str, *dests: str) -> None:
+    missing = [d for d in dests if getattr(args, d) is None]
+    if missing:
+        names = ", ".join("--" + d.replace("_", "-") for d in missing)
+        raise CalcInputError(f"{method} needs {names} as well")
+
+
+# --- the uncertainty model --------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class InputUncertainty:
+    """Standard uncertainties applied to every reading and every position."""
+
+    mass_g: float = 0.0
+    position_in: float = 0.0
+    balance_point_in: float = 0.0
+
+    def mass(self, value_g: float) -> UncertainValue:
+        return UncertainValue(value_g, self.mass_g)
+
+    def position(self, value_in: float) -> UncertainValue:
+        return UncertainValue(value_in, self.position_in)
+
+
+def _uncertainty(args: argparse.Namespace) -> InputUncertainty:
+    step = _non_negative("--display-step", _mass(args, "display_step"))
+    repeat = _non_negative("--repeatability", _mass(args, "repeatability"))
+    position = _non_negative("--position-u", _length(args, "position_u"))
+    bp_u = _length(args, "balance_point_u")
+    balance = position if bp_u is None else _non_negative("--balance-point-u", bp_u)
+    # Each reading is a net reading (load minus a tared zero): d/sqrt(6) per GUM, plus the
+    # scatter of repeated readings in quadrature.
+    return InputUncertainty(combine_u(net_resolution_u(step), repeat), position, balance)
+
+
+# --- parts --------------------------------------------------------------------------------------
+
+
+def _parse_extra(text: str, length_in: float, option: str) -> Part:
+    """``MASS@POSITION[:tip|:butt]``; without the suffix a part rides with the nearer end."""
+    body, _, rides = text.partition(":")
+    mass_text, at, pos_text = body.partition("@")
+    form = "MASS@POSITION[:tip|:butt] such as 4g@35in or 10g@1in:butt"
+    if not at:
+        raise CalcInputError(f"{option}: {text!r} is not {form}")
+    try:
+        mass_g = parse_quantity(mass_text, kind="mass")
+        position_in = parse_quantity(pos_text, kind="length")
+    except UnitError as err:
+        raise CalcInputError(f"{option}: {err}; expected {form}") from None
+    if rides and rides.strip().lower() not in ("tip", "butt"):
+        raise CalcInputError(f"{option}: {text!r} ends in {rides!r}; expected {form}")
+    end = (
+        End(rides.strip().lower())
+        if rides
+        else (End.TIP if position_in > length_in / 2 else End.BUTT)
+    )
+    try:
+        return Part(text, mass_g, position_in, end)
+    except BuildError as err:
+        raise CalcInputError(f"{option}: {err}") from None
+
+
+@dataclass
+class _PartsSpec:
+    """Parts gathered from a TOML file and/or options, all in grams and inches."""
+
+    values: dict[str, float] = field(default_factory=dict)
+    extras: list[str] = field(default_factory=list)
+    source: dict[str, str] = field(default_factory=dict)  # key -> where it came from
+
+
+_TOML_KEYS: Mapping[str, tuple[str, str, str]] = {
+    # key in _PartsSpec: (table, key, kind)
+    "length": ("", "length", "length"),
+    "head": ("head", "mass", "mass"),
+    "head_cg_from_end": ("head", "cg_from_end", "length"),
+    "shaft": ("shaft", "mass", "mass"),
+    "shaft_length": ("shaft", "length", "length"),
+    "shaft_balance_point": ("shaft", "balance_point", "length"),
+    "tip_trim": ("shaft", "tip_trim", "length"),
+    "butt_trim": ("shaft", "butt_trim", "length"),
+    "shaft_butt_at": ("shaft", "butt_at", "length"),
+    "grip": ("grip", "mass", "mass"),
+    "grip_cg": ("grip", "cg", "length"),
+}
+
+
+def _toml_value(path: Path, where: str, raw: object, kind: str) -> float:
+    if isinstance(raw, bool) or not isinstance(raw, int | float | str):
+        raise CalcInputError(f"--parts {path}: {where} must be a number or a string like '262g'")
+    if isinstance(raw, str):
+        try:
+            return parse_quantity(raw, kind=kind)
+        except UnitError as err:
+            raise CalcInputError(f"--parts {path}: {where}: {err}") from None
+    return float(raw)
+
+
+def _load_parts_file(path: Path) -> tuple[dict[str, float], list[tuple[str, str]]]:
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except OSError as err:
+        raise CalcInputError(f"--parts: cannot read {path}: {err.strerror}") from None
+    except tomllib.TOMLDecodeError as err:
+        raise CalcInputError(f"--parts {path}: not valid TOML: {err}") from None
+    known_tables = {"head", "shaft", "grip", "extra"}
+    for key, value in data.items():
+        if isinstance(value, dict | list) and key not in known_tables:
+            raise CalcInputError(f"--parts {path}: unknown table [{key}]; expected {known_tables}")
+    values: dict[str, float] = {}
+    for name, (table, key, kind) in _TOML_KEYS.items():
+        container = data if not table else data.get(table, {})
+        if not isinstance(container, dict):
+            raise CalcInputError(f"--parts {path}: [{table}] must be a table")
+        if key in container:
+            where = f"{table}.{key}" if table else key
+            values[name] = _toml_value(path, where, container[key], kind)
+    extras: list[tuple[str, str]] = []
+    raw_extras = data.get("extra", [])
+    if not isinstance(raw_extras, list):
+        raise CalcInputError(f"--parts {path}: extras are [[extra]] tables")
+    for i, item in enumerate(raw_extras, start=1):
+        if not isinstance(item, dict) or "mass" not in item or "at" not in item:
+            raise CalcInputError(f"--parts {path}: [[extra]] #{i} needs mass and at")
+        name = str(item.get("name", f"extra {i}"))
+        mass = _toml_value(path, f"extra #{i} mass", item["mass"], "mass")
+        at = _toml_value(path, f"extra #{i} at", item["at"], "length")
+        rides = str(item.get("rides_with", ""))
+        extras.append((name, f"{mass}g@{at}in" + (f":{rides}" if rides else "")))
+    return values, extras
+
+
+_PART_OPTIONS = tuple(_TOML_KEYS)
+
+
+def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
+    values: dict[str, float] = {}
+    named_extras: list[tuple[str, str]] = []
+    if args.parts is not None:
+        values, named_extras = _load_parts_file(Path(args.parts))
+    for name in _PART_OPTIONS:
+        kind = _TOML_KEYS[name][2]
+        value = _quantity(args, name, kind)
+        if value is not None:
+            values[name] = value  # options override the file
+    named_extras += [("--extra", text) for text in args.extra or []]
+    for needed in ("length", "head", "shaft", "shaft_length", "shaft_balance_point", "grip"):
+        if needed not in values:
+            option = "--" + needed.replace("_", "-")
+            raise CalcInputError(
+                f"a prediction from parts needs {option} (or its key in the --parts file)"
+            )
+    length_in = values["length"]
+    try:
+        shaft = Shaft(values["shaft"], values["shaft_length"], values["shaft_balance_point"])
+        tip, butt = values.get("tip_trim", 0.0), values.get("butt_trim", 0.0)
+        if tip or butt:
+            shaft = shaft.trimmed(tip_in=tip, butt_in=butt)
+        extras = []
+        for name, text in named_extras:
+            part = _parse_extra(text, length_in, "--extra" if name == "--extra" else "--parts")
+            extras.append(
+                Part(
+                    name if name != "--extra" else text,
+                    part.mass_g,
+                    part.position_in,
+                    part.rides_with,
+                )
+            )
+        return ClubBuild(
+            length_in=length_in,
+            head_g=values["head"],
+            shaft=shaft,
+            grip_g=values["grip"],
+            head_cg_from_end_in=values.get("head_cg_from_end", DEFAULT_HEAD_CG_FROM_END_IN),
+            grip_cg_in=values.get("grip_cg", DEFAULT_GRIP_CG_IN),
+            shaft_butt_in=values.get("shaft_butt_at", 0.0),
+            extras=tuple(extras),
+        )
+    except BuildError as err:
+        raise CalcInputError(f"parts: {err}") from None
+
+
+# --- the calculation ----------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CalcResult:
+    method: str
+    fulcrum_in: float
+    club: ClubNumbers
+    bench: BenchInputs
+    correction: CorrectionNumbers | None = None
+    correction_at_u: float | None = None
+    correction_at_default: str | None = None
+    moi_g_in2: tuple[float, float | None] | None = None
+    length_change: tuple[float, str, float] | None = None  # delta_in, end, points before
+    build: ClubBuild | None = None
+
+
+def _method(args: argparse.Namespace) -> str:
+    supports = _given(args, "support_a", "reading_a", "support_b", "reading_b")
+    lever = _given(args, "lever_force", "lever_arm")
+    parts = _given(args, "parts", "head", "shaft", "shaft_length", "shaft_balance_point", "grip")
+    chosen = [n for n, g in (("supports", supports), ("lever", lever), ("parts", parts)) if g]
+    if len(chosen) > 1:
+        raise CalcInputError(f"give one way of reading the club, not {' and '.join(chosen)}")
+    if chosen:
+        return chosen[0]
+    if args.weight is None and args.balance_point is None:
+        raise CalcInputError(
+            "give a club: --weight and --balance-point; or --support-a/--reading-a/--support-b/"
+            "--reading-b; or --lever-force/--lever-arm with --weight; or parts (--parts FILE or "
+            "--head/--shaft/...)"
+        )
+    return "weight_balance"
+
+
+def _bench(
+    args: argparse.Namespace, method: str, u: InputUncertainty
+) -> tuple[BenchInputs, ClubBuild | None, tuple[float, str, float] | None]:
+    fulcrum = args.fulcrum_in
+    if method != "parts" and (args.length_change is not None):
+        raise CalcInputError("--length-change works on a prediction from parts")
+    if method == "supports":
+        _require(args, "two supports", "support_a", "reading_a", "support_b", "reading_b")
+        for stray in _given(args, "weight", "balance_point"):
+            raise CalcInputError(f"--{stray.replace('_', '-')} does not go with two supports")
+        return (
+            two_supports_bench(
+                u.mass(_mass(args, "reading_a") or 0.0),
+                u.position(_length(args, "support_a") or 0.0),
+                u.mass(_mass(args, "reading_b") or 0.0),
+                u.position(_length(args, "support_b") or 0.0),
+                fulcrum,
+            ),
+            None,
+            None,
+        )
+    if method == "lever":
+        _require(args, "a lever beam", "lever_force", "lever_arm", "weight")
+        if args.balance_point is not None:
+            raise CalcInputError("--balance-point does not go with a lever beam (it is computed)")
+        return (
+            lever_bench(
+                u.mass(_mass(args, "lever_force") or 0.0),
+                u.position(_length(args, "lever_arm") or 0.0),
+                u.mass(_mass(args, "weight") or 0.0),
+                fulcrum,
+            ),
+            None,
+            None,
+        )
+    if method == "parts":
+        for stray in _given(args, "weight", "balance_point"):
+            raise CalcInputError(f"--{stray.replace('_', '-')} does not go with a prediction")
+        build = _build_from_parts(args)
+        change = None
+        if args.length_change is not None:
+            delta = _length(args, "length_change") or 0.0
+            before = statics_of_parts(build.parts())
+            points_before = club_numbers(
+                weight_and_balance_bench(
+                    UncertainValue(before.total_weight_g), UncertainValue(before.balance_point_in)
+                )
+            ).swingweight_points
+            try:
+                build = change_length(build, delta, End(args.change_at))
+            except BuildError as err:
+                raise CalcInputError(f"--length-change: {err}") from None
+            change = (delta, args.change_at, points_before)
+        s = statics_of_parts(build.parts(), fulcrum)
+        bench = weight_and_balance_bench(
+            UncertainValue(s.total_weight_g), UncertainValue(s.balance_point_in), fulcrum
+        )
+        return bench, build, change
+    _require(args, "a measured club", "weight", "balance_point")
+    return (
+        weight_and_balance_bench(
+            u.mass(_mass(args, "weight") or 0.0),
+            UncertainValue(_length(args, "balance_point") or 0.0, u.balance_point_in),
+            fulcrum,
+        ),
+        None,
+        None,
+    )
+
+
+def calculate(args: argparse.Namespace) -> CalcResult:
+    """Everything ``heft calc`` prints, from parsed arguments; raises CalcInputError."""
+    fulcrum = _length(args, "fulcrum")
+    args.fulcrum_in = FULCRUM_14_IN if fulcrum is None else fulcrum
+    u = _uncertainty(args)
+    method = _method(args)
+    try:
+        bench, build, change = _bench(args, method, u)
+        club = club_numbers(bench)
+    except StaticsError as err:
+        raise CalcInputError(f"{method.replace('_', ' ')}: {err}") from None
+
+    correction = None
+    at_u = None
+    at_default = None
+    if args.target is not None:
+        try:
+            target_points = points_from_label(args.target)
+        except SwingweightLabelError as err:
+            raise CalcInputError(f"--target: {err}") from None
+        at_in = _length(args, "at")
+        length_in = build.length_in if build else _length(args, "length")
+        if at_in is None:
+            if length_in is not None:
+                at_in = length_in - DEFAULT_HEAD_CG_FROM_END_IN
+                at_default = f"the head: {DEFAULT_HEAD_CG_FROM_END_IN:g} in short of the length"
+            else:
+                at_in = DEFAULT_CORRECTION_AT_IN
+                at_default = "default: a mid-iron head; give --at or --length"
+        at_u = u.position_in if u.position_in > 0 else None
+        try:
+            correction = correction_numbers(bench, target_points, u.position(at_in))
+        except (CorrectionError, SwingweightRangeError) as err:
+            raise CalcInputError(f"--target/--at: {err}") from None
+
+    moi = None
+    if args.period is not None or args.pivot is not None:
+        _require(args, "an MOI from a pendulum", "period", "pivot")
+        period = _number(args, "period", "a period in seconds such as 1.52")
+        period_u = _non_negative("--period-u", _number(args, "period_u", "seconds"))
+        amplitude = _number(args, "amplitude", "an amplitude in degrees") or 0.0
+        gravity = _number(args, "gravity", "an acceleration in m/s^2 such as 9.806")
+        try:
+            moi = moi_about_butt_numbers(
+                bench,
+                u.position(_length(args, "pivot") or 0.0),
+                UncertainValue(period or 0.0, period_u),
+                amplitude_rad=math.radians(amplitude),
+                **({"gravity_m_s2": gravity} if gravity is not None else {}),
+            )
+        except (PendulumError, ValueError) as err:
+            raise CalcInputError(f"--period/--pivot: {err}") from None
+
+    return CalcResult(
+        method=method,
+        fulcrum_in=args.fulcrum_in,
+        club=club,
+        bench=bench,
+        correction=correction,
+        correction_at_u=None if at_u is None else 2.0 * at_u,
+        correction_at_default=at_default,
+        moi_g_in2=moi,
+        length_change=change,
+        build=build,
+    )
+
+
+# --- output -------------------------------------------------------------------------------------
+
+
+def _put(out: dict[str, object], key: str, value: object, u: float | None = None) -> None:
+    out[key] = value
+    if u is not None:
+        out[f"{key}_u"] = u
+
+
+def result_as_json(result: CalcResult) -> dict[str, object]:
+    """The ``--json`` document: unit-suffixed keys, ``<key>_u`` (k = 2) only where inputs had u."""
+    c = result.club
+    out: dict[str, object] = {"method": result.method, "fulcrum_in": result.fulcrum_in}
+    for key, value in c.as_dict().items():
+        if not key.endswith("_u"):
+            _put(out, key, value, getattr(c, f"{key}_u", None))
+    out["swingweight_in_range"] = points_in_range(c.swingweight_points)
+    m14_oz_in = moment_oz_in_from_points(c.swingweight_points)
+    out["moment_12in_oz_in"] = moment_12in_from_14in_oz_in(m14_oz_in, c.total_weight_g)
+    if result.correction is not None:
+        k = result.correction
+        corr = k.correction
+        out["target_swingweight"] = label_from_points(corr.target_points)
+        out["target_swingweight_points"] = corr.target_points
+        _put(out, "correction_g", corr.mass_g, k.mass_g_u)
+        _put(out, "correction_at_in", corr.position_in, result.correction_at_u)
+        _put(
+            out,
+            "corrected_total_weight_g",
+            corr.corrected_total_weight_g,
+            k.corrected_total_weight_g_u,
+        )
+        _put(
+            out,
+            "corrected_balance_point_in",
+            corr.corrected_balance_point_in,
+            k.corrected_balance_point_in_u,
+        )
+    if result.moi_g_in2 is not None:
+        value, u = result.moi_g_in2
+        _put(out, "moi_butt_g_in2", value, u)
+        _put(
+            out,
+            "moi_butt_kg_cm2",
+            g_in2_to_kg_cm2(value),
+            None if u is None else g_in2_to_kg_cm2(u),
+        )
+    if result.length_change is not None:
+        delta, end, before = result.length_change
+        out["length_change_in"] = delta
+        out["length_change_at"] = end
+        out["swingweight_points_change"] = c.swingweight_points - before
+    if result.build is not None:
+        out["length_in"] = result.build.length_in
+    return out
+
+
+def _pm(u: float | None, fmt: str, unit: str) -> str:
+    return "" if u is None else f" ± {u:{fmt}} {unit}"
+
+
+def print_human(result: CalcResult, stream: TextIO) -> None:
+    """A short block readable at the bench."""
+    c = result.club
+    w = print_line(stream)
+    titles = {
+        "weight_balance": "Measured club",
+        "supports": "Club on two supports",
+        "lever": "Club on a lever beam",
+        "parts": "Predicted club (from parts)",
+    }
+    w(titles[result.method])
+    w(
+        f"  total weight   {c.total_weight_g:8.1f} g{_pm(c.total_weight_g_u, '.1f', 'g')}"
+        f"   ({g_to_oz(c.total_weight_g):.2f} oz)"
+    )
+    w(
+        f"  balance point  {c.balance_point_in:8.2f} in{_pm(c.balance_point_in_u, '.2f', 'in')}"
+        f"   ({in_to_mm(c.balance_point_in):.0f} mm from the butt)"
+    )
+    w(
+        f"  moment @{result.fulcrum_in:g} in {c.moment_g_in:7.0f} g*in"
+        f"{_pm(c.moment_g_in_u, '.0f', 'g*in')}"
+        f"   ({c.moment_oz_in:.1f} oz*in)"
+    )
+    if points_in_range(c.swingweight_points):
+        note = f"   ({c.swingweight_points:.2f} points, A0 = 0)"
+    else:
+        note = f"   OUT OF RANGE: {c.swingweight_points:.1f} points, the scale runs A0..G10"
+    w(f"  swing weight   {c.swingweight:>8}{_pm(c.swingweight_points_u, '.1f', 'points')}{note}")
+    if result.length_change is not None:
+        delta, end, before = result.length_change
+        w(
+            f"  length change  {delta:+.2f} in at the {end}: "
+            f"{c.swingweight_points - before:+.1f} points"
+        )
+    if result.moi_g_in2 is not None:
+        value, u = result.moi_g_in2
+        w(
+            f"  MOI about butt {value:8.0f} g*in^2{_pm(u, '.0f', 'g*in^2')}"
+            f"   ({g_in2_to_kg_cm2(value):.0f} kg*cm^2)"
+        )
+    if result.correction is not None:
+        corr = result.correction.correction
+        verb = "add" if corr.mass_g >= 0 else "remove"
+        where = f" ({result.correction_at_default})" if result.correction_at_default else ""
+        mass_u = _pm(result.correction.mass_g_u, ".1f", "g")
+        w(
+            f"Target {label_from_points(corr.target_points)}: "
+            f"{verb} {abs(corr.mass_g):.1f} g{mass_u}"
+            f" at {corr.position_in:.2f} in{where}"
+        )
+        w(
+            f"  then           {corr.corrected_total_weight_g:8.1f} g, "
+            f"balance point {corr.corrected_balance_point_in:.2f} in"
+        )
+    if result.bench.carries_u:
+        w("± values are expanded uncertainties (k = 2, about 95 %).")
+
+
+def print_line(stream: TextIO) -> Callable[[str], None]:
+    def w(text: str) -> None:
+        stream.write(text + "\n")
+
+    return w
+
+
+def run(args: argparse.Namespace) -> int:
+    try:
+        result = calculate(args)
+    except CalcInputError as err:
+        print(f"{PROG}: error: {err}", file=sys.stderr)
+        return 2
+    if args.json:
+        json.dump(result_as_json(result), sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print_human(result, sys.stdout)
+    return 0
+
+
+# --- the parser ---------------------------------------------------------------------------------
+
+
+def register(subparsers: Any) -> None:
+    p: argparse.ArgumentParser = subparsers.add_parser(
+        "calc",
+        help="total weight, balance point, swing weight and corrections from numbers you give",
+        description=(
+            "Club numbers from bench readings or from parts. Masses accept g, oz, kg, lb "
+            "(bare numbers are grams); lengths accept in, mm, cm (bare numbers are inches). "
+            "Positions are measured from the butt (the end of the grip cap)."
+        ),
+    )
+    a = p.add_argument
+    g = p.add_argument_group("a measured club").add_argument
+    g("--weight", metavar="MASS", help="total weight, e.g. 412g or 14.53oz")
+    g("--balance-point", metavar="LEN", help="balance point from the butt, e.g. 28.9in or 734mm")
+    g = p.add_argument_group("two supports (two scales or two cells under one beam)").add_argument
+    g("--support-a", metavar="LEN", help="position of support A from the butt stop")
+    g("--reading-a", metavar="MASS", help="tared reading of support A")
+    g("--support-b", metavar="LEN", help="position of support B from the butt stop")
+    g("--reading-b", metavar="MASS", help="tared reading of support B")
+    g = p.add_argument_group("lever beam (pivot at the fulcrum; needs --weight too)").add_argument
+    g("--lever-force", metavar="MASS", help="reading at the lever arm, empty beam zeroed")
+    g("--lever-arm", metavar="LEN", help="distance of that reading from the pivot")
+    g = p.add_argument_group("prediction from parts (or --parts FILE.toml)").add_argument
+    g("--parts", metavar="FILE", help="TOML file of parts (see docs/calc.md)")
+    g("--length", metavar="LEN", help="club length; also places a correction at the head")
+    g("--head", metavar="MASS", help="head mass")
+    g(
+        "--head-cg-from-end",
+        metavar="LEN",
+        help=f"head CG back from the club's end (default {DEFAULT_HEAD_CG_FROM_END_IN:g} in)",
+    )
+    g("--shaft", metavar="MASS", help="shaft mass before trimming")
+    g("--shaft-length", metavar="LEN", help="shaft length before trimming")
+    g("--shaft-balance-point", metavar="LEN", help="shaft balance point from its butt end")
+    g("--tip-trim", metavar="LEN", help="length cut from the shaft tip")
+    g("--butt-trim", metavar="LEN", help="length cut from the shaft butt")
+    g("--shaft-butt-at", metavar="LEN", help="where the shaft's butt sits (default 0)")
+    g("--grip", metavar="MASS", help="grip mass")
+    g("--grip-cg", metavar="LEN", help=f"grip CG from the butt (default {DEFAULT_GRIP_CG_IN:g} in)")
+    g(
+        "--extra",
+        metavar="MASS@LEN[:tip|:butt]",
+        action="append",
+        help="another mass: tape, tip weight, butt weight (repeatable)",
+    )
+    g("--length-change", metavar="LEN", help="make the club longer (+) or shorter (-)")
+    g(
+        "--change-at",
+        choices=("tip", "butt"),
+        default="butt",
+        help="where the length changes (default butt)",
+    )
+    g = p.add_argument_group("target").add_argument
+    g("--target", metavar="LABEL", help="target swing weight, e.g. D2 or d-1.5")
+    g(
+        "--at",
+        metavar="LEN",
+        help=f"where the correction mass goes (default: the head, from --length; else "
+        f"{DEFAULT_CORRECTION_AT_IN:g} in)",
+    )
+    g = p.add_argument_group("MOI from a pendulum swing").add_argument
+    g("--period", metavar="S", help="period of one full swing in seconds")
+    g("--pivot", metavar="LEN", help="pivot position from the butt")
+    g("--period-u", metavar="S", help="standard uncertainty of the period")
+    g("--amplitude", metavar="DEG", help="swing amplitude in degrees (default 0: small swings)")
+    g("--gravity", metavar="M/S2", help="local gravity (default 9.80665)")
+    g = p.add_argument_group("uncertainty of the inputs (standard uncertainties)").add_argument
+    g("--display-step", metavar="MASS", help="the scale's display step d (u = d/sqrt(6))")
+    g("--repeatability", metavar="MASS", help="scatter of repeated readings (one sigma)")
+    g("--position-u", metavar="LEN", help="uncertainty of each position")
+    g("--balance-point-u", metavar="LEN", help="uncertainty of --balance-point")
+    a("--fulcrum", metavar="LEN", help="fulcrum for the moment (default 14 in)")
+    a("--json", action="store_true", help="print JSON (unit-suffixed keys) instead of text")
+    p.set_defaults(func=run)
