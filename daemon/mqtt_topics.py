@@ -321,3 +321,94 @@ class AlarmsPayload(_Payload):
     station: str
     time_utc: datetime
     active: list[AlarmPayload] = Field(default_factory=list)
+
+
+# --------------------------------------------------------------------------------------------
+# Home Assistant MQTT discovery (device-based: one config message describes the whole station).
+
+
+def ha_object_id(station: str) -> str:
+    """Station id as a discovery object id (letters, digits, '_' and '-' only)."""
+    return "heft_" + "".join(c if c.isalnum() or c in "_-" else "_" for c in station)
+
+
+def ha_discovery(
+    topics: Topics, ha_prefix: str, software_version: str
+) -> tuple[str, dict[str, object]]:
+    """Topic and payload announcing the station as one Home Assistant device.
+
+    The entities read the retained ``last_measurement``, ``capture`` and ``alarms`` topics, and
+    the station's ``status`` topic is their availability.
+    """
+    oid = ha_object_id(topics.station)
+
+    def sensor(
+        key: str, name: str, topic: str, template: str, **extra: object
+    ) -> dict[str, object]:
+        return {
+            "p": "sensor",
+            "name": name,
+            "unique_id": f"{oid}_{key}",
+            "state_topic": topic,
+            "value_template": template,
+            **extra,
+        }
+
+    last = topics.measurement_last
+    components: dict[str, object] = {
+        "total_weight": sensor(
+            "total_weight",
+            "Total weight",
+            last,
+            "{{ value_json.total_weight_g }}",
+            unit_of_measurement="g",
+            device_class="weight",
+            state_class="measurement",
+        ),
+        "balance_point": sensor(
+            "balance_point",
+            "Balance point",
+            last,
+            "{{ value_json.balance_point_in }}",
+            unit_of_measurement="in",
+            device_class="distance",
+            state_class="measurement",
+        ),
+        "swingweight": sensor("swingweight", "Swing weight", last, "{{ value_json.swingweight }}"),
+        "swingweight_points": sensor(
+            "swingweight_points",
+            "Swing weight points",
+            last,
+            "{{ value_json.swingweight_points }}",
+            state_class="measurement",
+        ),
+        "verdict": sensor("verdict", "Verdict", last, "{{ value_json.verdict }}"),
+        "club_id": sensor("club_id", "Club id", last, "{{ value_json.club_id }}"),
+        "capture_state": sensor(
+            "capture_state", "Capture state", topics.capture, "{{ value_json.state }}"
+        ),
+        "alarm": {
+            "p": "binary_sensor",
+            "name": "Alarm",
+            "unique_id": f"{oid}_alarm",
+            "device_class": "problem",
+            "state_topic": topics.alarms,
+            "value_template": "{{ 'ON' if value_json.active | length > 0 else 'OFF' }}",
+        },
+    }
+    payload: dict[str, object] = {
+        "dev": {
+            "ids": [oid],
+            "name": f"heft {topics.station}",
+            "mf": "heft",
+            "mdl": "club weighing station",
+            "sw": software_version,
+        },
+        "o": {"name": "heft", "sw": software_version},
+        "availability": [
+            {"topic": topics.status, "payload_available": ONLINE, "payload_not_available": OFFLINE}
+        ],
+        "qos": 1,
+        "cmps": components,
+    }
+    return f"{ha_prefix}/device/{oid}/config", payload

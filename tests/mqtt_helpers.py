@@ -1,0 +1,100 @@
+"""Helpers for tests of the MQTT link against the real test broker."""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import time
+import uuid
+from collections.abc import AsyncIterator, Callable
+from dataclasses import dataclass, field
+
+import aiomqtt
+
+from daemon.mqtt_link import MqttLink
+from daemon.mqtt_settings import MqttSettings
+from tests.mqtt_broker import Broker
+
+
+def unique_root() -> str:
+    """A topic root no other test uses, so retained messages never leak between tests."""
+    return f"heft-test-{uuid.uuid4().hex[:10]}"
+
+
+def settings_for(broker: Broker, **overrides: object) -> MqttSettings:
+    values: dict[str, object] = {
+        "host": broker.host,
+        "port": broker.port,
+        "topic_root": unique_root(),
+        "keepalive_s": 5,
+    }
+    values.update(overrides)
+    return MqttSettings.model_validate(values)
+
+
+async def wait_until(
+    condition: Callable[[], bool], timeout_s: float = 15.0, what: str = "condition"
+) -> None:
+    """Poll ``condition`` until it holds; fail naming ``what`` after a generous timeout."""
+    deadline = time.monotonic() + timeout_s
+    while not condition():
+        if time.monotonic() > deadline:
+            raise AssertionError(f"timed out after {timeout_s} s waiting for {what}")
+        await asyncio.sleep(0.02)
+
+
+@dataclass
+class Collector:
+    """Every message received on some filters, in arrival order."""
+
+    messages: list[aiomqtt.Message] = field(default_factory=list)
+
+    def on(self, topic: str) -> list[aiomqtt.Message]:
+        return [m for m in self.messages if m.topic.matches(topic)]
+
+    def payloads(self, topic: str) -> list[bytes]:
+        return [bytes(m.payload) for m in self.on(topic)]  # type: ignore[arg-type]
+
+
+@contextlib.asynccontextmanager
+async def collecting(
+    broker: Broker,
+    *filters: str,
+    identifier: str | None = None,
+    protocol: aiomqtt.ProtocolVersion = aiomqtt.ProtocolVersion.V5,
+) -> AsyncIterator[tuple[aiomqtt.Client, Collector]]:
+    """A subscribed client whose messages land in a Collector while the block runs."""
+    collector = Collector()
+    async with aiomqtt.Client(
+        broker.host,
+        broker.port,
+        identifier=identifier or f"collector-{uuid.uuid4().hex[:8]}",
+        protocol=protocol,
+    ) as client:
+        for f in filters:
+            await client.subscribe(f, qos=1)
+
+        async def pump() -> None:
+            async for msg in client.messages:
+                collector.messages.append(msg)
+
+        task = asyncio.create_task(pump())
+        try:
+            yield client, collector
+        finally:
+            task.cancel()
+            with contextlib.suppress(asyncio.CancelledError, aiomqtt.MqttError):
+                await task
+
+
+@contextlib.asynccontextmanager
+async def running(link: MqttLink) -> AsyncIterator[asyncio.Task[None]]:
+    """Run the link in a task for the block; wait until it is connected first."""
+    task = asyncio.create_task(link.run())
+    try:
+        await asyncio.wait_for(link.wait_connected(), timeout=15)
+        yield task
+    finally:
+        task.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await task
