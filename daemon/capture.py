@@ -1,0 +1,667 @@
+"""The capture engine: from per-channel readings to one capture per placement.
+
+Pure and clock-injectable: no asyncio, no I/O, no clock of its own. The live service and
+``heft replay`` feed it the same way, with the time each reading arrived::
+
+    engine = CaptureEngine(["beam/0", "beam/1"], params)
+    for out in engine.on_sample("beam/0", t_s, value_g, flags):
+        ...  # StateChanged, Captured, Warning, ZeroTracked
+    engine.tick(now_s)  # when no samples come: timeouts
+
+States: EMPTY -> (load above the placement threshold) SETTLING -> (every channel stable, their
+windows overlapping) CAPTURED -> HOLDING -> (load below the empty threshold) EMPTY. SETTLING turns
+UNSETTLED after ``settle_timeout_s``; a channel that stops delivering puts the engine OFFLINE.
+
+Stability, per channel, is decided on a window of recent samples ending at the newest one. A
+straight line is fitted to the window (least squares, from running sums, so each test costs O(1));
+the window is stable when
+
+* the fitted trend changes by at most ``max_drift_d`` d across the window (+/-1 d, OIML R 76-1
+  4.4.2),
+* the scatter about the line is what the channel's noise explains (a chi-square test at
+  ``motion_confidence`` against the noise learned while empty): oscillation, bumps and creep show
+  up as excess scatter,
+* the standard error of the window's mean is at most ``resolution_d`` d, and
+* the window covers at least ``min_stable_s`` (0.4 s, OIML R 76-1 4.4.2).
+
+The engine tries windows from the longest (``max_window_s``) to the shortest and keeps the longest
+that passes, so a quiet channel is captured as soon as 0.4 s of it is stable, and a noisy one
+averages as long as it needs to. Windows of different channels must overlap for ``min_stable_s``:
+readings from separate devices arrive at different rates and times.
+"""
+
+from __future__ import annotations
+
+import bisect
+import math
+from collections import deque
+from collections.abc import Sequence
+from dataclasses import dataclass
+from functools import lru_cache
+from statistics import NormalDist, median
+
+from daemon.capture_params import CaptureParams
+from daemon.events import CaptureState
+from drivers.reading import Flag
+
+_UNUSABLE = Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT
+_MAX_CANDIDATES = 24  # window lengths tried per sample: bounds the cost at high sample rates
+_ZERO_TRACK_INTERVAL_S = 0.5  # zero-tracking corrections are applied at most this often
+_NOISE_ESTIMATES = 9  # the noise estimate is the median of this many recent empty windows
+_REBASE_EVERY = 20_000  # samples between re-centring the running sums (keeps them precise)
+_EPS_S = 1e-9
+
+
+# --- outputs -------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class WindowStats:
+    """The stable window of one channel that a capture was taken from (net grams)."""
+
+    mean_g: float
+    stdev_g: float
+    n: int
+    t_start_s: float
+    t_end_s: float
+
+
+@dataclass(frozen=True, slots=True)
+class StateChanged:
+    state: CaptureState
+    t_s: float
+    detail: str = ""
+
+
+@dataclass(frozen=True, slots=True)
+class Captured:
+    """One capture: the net mean of every channel's stable window."""
+
+    t_s: float
+    t_placed_s: float
+    windows: dict[str, WindowStats]
+
+    @property
+    def total_g(self) -> float:
+        return sum(w.mean_g for w in self.windows.values())
+
+
+@dataclass(frozen=True, slots=True)
+class Warning:  # the name in the engine's contract; CaptureWarning is an alias
+    """A condition the operator should see; ``active=False`` clears an earlier one."""
+
+    kind: str  # 'will_not_settle' | 'overload' | 'zero_out_of_range'
+    t_s: float
+    message: str
+    channel: str = ""
+    active: bool = True
+
+
+CaptureWarning = Warning
+
+
+@dataclass(frozen=True, slots=True)
+class ZeroTracked:
+    """Zero tracking moved a channel's zero offset (subtracted from every reading)."""
+
+    channel: str
+    offset_g: float
+    t_s: float = 0.0
+
+
+CaptureOutput = StateChanged | Captured | Warning | ZeroTracked
+
+
+# --- statistics ----------------------------------------------------------------------------
+
+
+@lru_cache(maxsize=8192)
+def chi2_quantile_ratio(dof: int, confidence: float) -> float:
+    """Upper quantile of chi-square with ``dof`` degrees of freedom, divided by ``dof``.
+
+    Wilson-Hilferty cube-root normal approximation (Wilson & Hilferty 1931; within about 3 %
+    of the tabulated values for dof >= 1 at the confidences used here).
+    """
+    z = NormalDist().inv_cdf(confidence)
+    h = 2.0 / (9.0 * dof)
+    return float((1.0 - h + z * math.sqrt(h)) ** 3)
+
+
+@dataclass(frozen=True, slots=True)
+class _Fit:
+    n: int
+    mean: float  # raw grams
+    slope_g_per_s: float
+    resid_var: float  # about the fitted line, dof n - 2
+    var: float  # about the mean, dof n - 1
+
+
+@dataclass(frozen=True, slots=True)
+class _Window:
+    first: int
+    last: int
+    fit: _Fit
+    t_start_s: float
+    t_end_s: float
+    cover_start_s: float  # earliest time the window speaks for (t_start, unless a device vouches)
+
+
+# --- one channel ---------------------------------------------------------------------------
+
+
+class _Channel:
+    """Samples of one channel with running sums for O(1) line fits over any index range."""
+
+    def __init__(self, name: str, params: CaptureParams) -> None:
+        self.name = name
+        self.d_g = params.division_for(name)
+        self.limit_g = params.overload_limit_for(name)
+        self.noise_prior_g = params.noise_for(name)
+        self.flag_mode = params.device_flags_for(name)
+        self.keep_s = max(params.max_window_s, params.zero_tracking_window_s) + 1.0
+        self.t: list[float] = []
+        self.x: list[float] = []
+        self.flags: list[Flag] = []
+        # cum[k] = (sum t', sum t'^2, sum x', sum x'^2, sum t'x') over samples 0..k-1
+        self.cum: list[tuple[float, float, float, float, float]] = [(0.0, 0.0, 0.0, 0.0, 0.0)]
+        self.t_ref = 0.0
+        self.x_ref = 0.0
+        self.head = 0  # first sample still kept
+        self.since_rebase = 0
+        self.window_from = 0  # first sample a window may start at
+        self.stable_run_from = 0  # first of the current run of device-STABLE samples
+        self.last_t: float | None = None
+        self.latest_net_g = 0.0  # what the load check sees
+        self.dt_s = 0.0  # typical sample interval
+        self.overloaded = False
+        self.offset_g = 0.0
+        self.zero_last_s: float | None = None
+        self.noise_from = 0
+        self.noise_estimates: deque[float] = deque(maxlen=_NOISE_ESTIMATES)
+        self.result: _Window | None = None
+
+    # storage
+    def append(self, t_s: float, value_g: float, flags: Flag) -> None:
+        if not self.t:
+            self.t_ref, self.x_ref = t_s, value_g
+        self._push_sums(t_s, value_g)
+        self.t.append(t_s)
+        self.x.append(value_g)
+        self.flags.append(flags)
+        if not flags & Flag.STABLE:
+            self.stable_run_from = len(self.t)
+        self._trim(t_s)
+
+    def _trim(self, now_s: float) -> None:
+        h = bisect.bisect_left(self.t, now_s - self.keep_s, self.head)
+        self.head = h
+        self.since_rebase += 1
+        if self.since_rebase >= _REBASE_EVERY or (h > 1024 and h > len(self.t) // 2):
+            self._compact()
+
+    def _compact(self) -> None:
+        h = self.head
+        del self.t[:h], self.x[:h], self.flags[:h]
+        self.window_from = max(0, self.window_from - h)
+        self.stable_run_from = max(0, self.stable_run_from - h)
+        self.noise_from = max(0, self.noise_from - h)
+        self.head = 0
+        self.since_rebase = 0
+        self.result = None
+        self.t_ref = self.t[0] if self.t else 0.0
+        self.x_ref = self.x[0] if self.x else 0.0
+        self.cum = [(0.0, 0.0, 0.0, 0.0, 0.0)]
+        for t, x in zip(self.t, self.x, strict=True):
+            self._push_sums(t, x)
+
+    def _push_sums(self, t_s: float, value_g: float) -> None:
+        tp, xp = t_s - self.t_ref, value_g - self.x_ref
+        c = self.cum[-1]
+        self.cum.append((c[0] + tp, c[1] + tp * tp, c[2] + xp, c[3] + xp * xp, c[4] + tp * xp))
+
+    def restart_windows(self) -> None:
+        """No window may reach back before the next sample (gap, overload, state change)."""
+        self.window_from = len(self.t)
+        self.noise_from = len(self.t)
+        self.result = None
+
+    @property
+    def noise_g(self) -> float:
+        if len(self.noise_estimates) >= 3:
+            return median(self.noise_estimates)
+        return self.noise_prior_g
+
+    def fit(self, i: int, j: int) -> _Fit:
+        """Least-squares line through samples i..j (inclusive) from the running sums."""
+        a, b = self.cum[i], self.cum[j + 1]
+        n = j - i + 1
+        st, stt, sx, sxx, stx = (b[k] - a[k] for k in range(5))
+        mt, mx = st / n, sx / n
+        ctt = stt - st * mt
+        cxx = max(sxx - sx * mx, 0.0)
+        ctx = stx - st * mx
+        slope = ctx / ctt if ctt > 1e-15 else 0.0
+        ssr = max(cxx - slope * ctx, 0.0)
+        return _Fit(
+            n=n,
+            mean=self.x_ref + mx,
+            slope_g_per_s=slope,
+            resid_var=ssr / (n - 2) if n > 2 else 0.0,
+            var=cxx / (n - 1) if n > 1 else 0.0,
+        )
+
+
+# --- the engine ----------------------------------------------------------------------------
+
+
+class CaptureEngine:
+    """Placement, stability, capture, hold, removal and zero tracking for one station."""
+
+    def __init__(self, channels: Sequence[str], params: CaptureParams) -> None:
+        names = list(channels)
+        if not names:
+            raise ValueError("a capture engine needs at least one channel")
+        if len(set(names)) != len(names):
+            raise ValueError(f"channel names must be unique, got {names}")
+        self.params = params
+        self._ch = {n: _Channel(n, params) for n in names}
+        self._state = CaptureState.EMPTY
+        self._t_placed: float | None = None
+        self._t_first: float | None = None  # first time the engine heard of (sample or tick)
+        self._offline_since: float | None = None
+        self._captured_total_g: float | None = None
+        self._warned_unsettled = False
+        self._zero_warned: set[str] = set()
+        self.dropped_samples = 0  # out-of-order samples ignored
+
+    # --- public views ---
+    @property
+    def state(self) -> CaptureState:
+        return self._state
+
+    @property
+    def channels(self) -> tuple[str, ...]:
+        return tuple(self._ch)
+
+    @property
+    def zero_offsets_g(self) -> dict[str, float]:
+        return {n: c.offset_g for n, c in self._ch.items()}
+
+    @property
+    def noise_g(self) -> dict[str, float]:
+        """Current noise estimate (rms) per channel: learned while empty, else the prior."""
+        return {n: c.noise_g for n, c in self._ch.items()}
+
+    def net_g(self) -> dict[str, float]:
+        """Latest net value per channel (what the placement check sees)."""
+        return {n: c.latest_net_g for n, c in self._ch.items()}
+
+    # --- inputs ---
+    def on_sample(
+        self, channel: str, t_s: float, value_g: float, flags: Flag = Flag.NONE
+    ) -> list[CaptureOutput]:
+        """Feed one reading (grams, tared upstream) of ``channel`` that arrived at ``t_s``."""
+        ch = self._ch.get(channel)
+        if ch is None:
+            raise ValueError(f"unknown channel {channel!r}; this engine has {list(self._ch)}")
+        if ch.last_t is not None and t_s < ch.last_t:
+            self.dropped_samples += 1
+            return []
+        if self._t_first is None:
+            self._t_first = t_s
+        out: list[CaptureOutput] = []
+        p = self.params
+        if ch.last_t is not None:
+            interval = t_s - ch.last_t
+            if interval > p.max_gap_s:
+                ch.restart_windows()  # no window spans a gap (or a disconnect)
+            elif interval > 0:
+                ch.dt_s = interval if ch.dt_s == 0 else 0.9 * ch.dt_s + 0.1 * interval
+        ch.last_t = t_s
+
+        if not math.isfinite(value_g):
+            flags |= Flag.FAULT
+        over = bool(flags & Flag.OVERLOAD) or (math.isfinite(value_g) and value_g > ch.limit_g)
+        if over or flags & _UNUSABLE:
+            ch.restart_windows()
+            ch.stable_run_from = len(ch.t)
+            if over:
+                ch.latest_net_g = ch.limit_g
+                if not ch.overloaded:
+                    ch.overloaded = True
+                    out.append(
+                        Warning(
+                            "overload",
+                            t_s,
+                            f"{channel} reads above capacity + 9 d ({ch.limit_g:g} g): "
+                            "not a weight, remove the load",
+                            channel,
+                        )
+                    )
+            elif flags & Flag.UNDERLOAD:
+                ch.latest_net_g = 0.0
+        else:
+            if ch.overloaded:
+                ch.overloaded = False
+                out.append(Warning("overload", t_s, f"{channel} back in range", channel, False))
+            ch.append(t_s, value_g, flags)
+            ch.latest_net_g = value_g - ch.offset_g
+
+        out.extend(self._advance(ch, t_s))
+        return out
+
+    def tick(self, t_s: float) -> list[CaptureOutput]:
+        """Let time pass without samples: settle timeout and silent channels."""
+        if self._t_first is None:
+            self._t_first = t_s
+        out: list[CaptureOutput] = []
+        if self._state is not CaptureState.OFFLINE:
+            silent = [
+                c.name
+                for c in self._ch.values()
+                if t_s - (c.last_t if c.last_t is not None else self._t_first)
+                > self.params.channel_timeout_s
+            ]
+            if silent:
+                out.extend(self._go_offline(t_s, silent))
+                return out
+        out.extend(self._check_timeout(t_s))
+        return out
+
+    def rearm(self) -> list[CaptureOutput]:
+        """Operator command: allow the club on the supports to be captured again."""
+        self._captured_total_g = None
+        if self._state in (CaptureState.OFFLINE, CaptureState.EMPTY):
+            return []
+        t = self._latest_t()
+        if self._total_net_g() < self.params.empty_threshold_g:
+            return self._set_state(CaptureState.EMPTY, t, "re-armed")
+        return self._start_settling(t, "re-armed", after=True)
+
+    def reset_zero(self, channel: str | None = None) -> list[CaptureOutput]:
+        """Forget zero tracking (after the service zeroed or tared the channel upstream)."""
+        out: list[CaptureOutput] = []
+        t = self._latest_t()
+        for c in self._ch.values():
+            if channel is not None and c.name != channel:
+                continue
+            if c.offset_g != 0.0:
+                c.offset_g = 0.0
+                out.append(ZeroTracked(c.name, 0.0, t))
+            if c.name in self._zero_warned:
+                self._zero_warned.discard(c.name)
+                out.append(Warning("zero_out_of_range", t, f"{c.name} zero reset", c.name, False))
+            c.zero_last_s = None
+        return out
+
+    # --- state machine ---
+    def _advance(self, ch: _Channel, t_s: float) -> list[CaptureOutput]:
+        p = self.params
+        st = self._state
+        if st is CaptureState.OFFLINE:
+            return self._maybe_back_online(t_s)
+        total = self._total_net_g()
+        if st is CaptureState.EMPTY:
+            if total > p.placement_threshold_g:
+                return self._start_settling(t_s, f"load {total:.1f} g")
+            return self._empty_housekeeping(ch, t_s)
+        if total < p.empty_threshold_g:
+            return self._removed(t_s)
+        if st in (CaptureState.HOLDING, CaptureState.CAPTURED):
+            return []
+        # SETTLING or UNSETTLED
+        ch.result = self._evaluate(ch)
+        if st is CaptureState.SETTLING or p.capture_after_timeout:
+            captured = self._try_capture(t_s)
+            if captured:
+                return captured
+        return self._check_timeout(t_s)
+
+    def _set_state(self, state: CaptureState, t_s: float, detail: str) -> list[CaptureOutput]:
+        if state is self._state:
+            return []
+        self._state = state
+        return [StateChanged(state, t_s, detail)]
+
+    def _restart_all(self) -> None:
+        for c in self._ch.values():
+            c.restart_windows()
+
+    def _start_settling(
+        self, t_s: float, detail: str, *, after: bool = False
+    ) -> list[CaptureOutput]:
+        self._t_placed = t_s
+        self._warned_unsettled = False
+        find = bisect.bisect_right if after else bisect.bisect_left
+        for c in self._ch.values():
+            # windows start at the first sample at (placement) or after (re-arm) ``t_s``
+            c.window_from = find(c.t, t_s, c.head)
+            c.result = None
+        return self._set_state(CaptureState.SETTLING, t_s, detail)
+
+    def _clear_unsettled(self, t_s: float, why: str) -> list[CaptureOutput]:
+        if not self._warned_unsettled:
+            return []
+        self._warned_unsettled = False
+        return [Warning("will_not_settle", t_s, why, "", False)]
+
+    def _removed(self, t_s: float) -> list[CaptureOutput]:
+        out = self._clear_unsettled(t_s, "load removed")
+        self._captured_total_g = None
+        self._t_placed = None
+        self._restart_all()
+        out.extend(self._set_state(CaptureState.EMPTY, t_s, "removed"))
+        return out
+
+    def _check_timeout(self, t_s: float) -> list[CaptureOutput]:
+        if self._state is not CaptureState.SETTLING or self._t_placed is None:
+            return []
+        waited = t_s - self._t_placed
+        if waited < self.params.settle_timeout_s:
+            return []
+        self._warned_unsettled = True
+        unsettled = [c.name for c in self._ch.values() if c.result is None]
+        msg = (
+            f"no stable reading {waited:.1f} s after placement"
+            + (f" (still moving: {', '.join(unsettled)})" if unsettled else "")
+            + "; steady the bench or the club"
+        )
+        out: list[CaptureOutput] = [Warning("will_not_settle", t_s, msg)]
+        out.extend(self._set_state(CaptureState.UNSETTLED, t_s, msg))
+        return out
+
+    def _go_offline(self, t_s: float, silent: list[str]) -> list[CaptureOutput]:
+        out = self._clear_unsettled(t_s, "capture abandoned: channel offline")
+        self._offline_since = t_s
+        self._restart_all()
+        detail = f"no samples from {', '.join(silent)} for {self.params.channel_timeout_s:g} s"
+        out.extend(self._set_state(CaptureState.OFFLINE, t_s, detail))
+        return out
+
+    def _maybe_back_online(self, t_s: float) -> list[CaptureOutput]:
+        since = self._offline_since if self._offline_since is not None else t_s
+        if any(c.last_t is None or c.last_t <= since for c in self._ch.values()):
+            return []
+        self._offline_since = None
+        self._restart_all()
+        total = self._total_net_g()
+        p = self.params
+        if total <= p.placement_threshold_g:
+            self._captured_total_g = None
+            return self._set_state(CaptureState.EMPTY, t_s, "channels back")
+        held = self._captured_total_g
+        if held is not None and abs(total - held) < p.placement_threshold_g:
+            return self._set_state(CaptureState.HOLDING, t_s, "channels back, club captured")
+        self._captured_total_g = None
+        return self._start_settling(t_s, "channels back with a load")
+
+    # --- stability ---
+    def _evaluate(self, ch: _Channel) -> _Window | None:
+        """Longest stable window of ``ch`` ending at its newest sample, or None."""
+        if ch.overloaded or not ch.t:
+            return None
+        j = len(ch.t) - 1
+        first = max(ch.window_from, ch.head)
+        if j < first:
+            return None
+        p = self.params
+        last_flags = ch.flags[j]
+        mode = ch.flag_mode
+        if mode == "trust" and last_flags & Flag.STABLE:
+            i = max(first, ch.stable_run_from)
+            if i <= j:
+                f = ch.fit(i, j)
+                # the device vouches for its own stable window
+                return _Window(i, j, f, ch.t[i], ch.t[j], ch.t[j] - p.min_stable_s)
+        if mode == "veto" and last_flags & Flag.MOTION:
+            return None
+        if mode == "require" and not last_flags & Flag.STABLE:
+            return None
+        return self._longest_stable(ch, first, j, p.min_stable_s, p.max_window_s)
+
+    def _longest_stable(
+        self, ch: _Channel, first: int, j: int, min_cover_s: float, max_cover_s: float
+    ) -> _Window | None:
+        t = ch.t
+        # newest start whose window still spans min_cover_s (first to last sample: the
+        # conservative reading of "for at least 0.4 s")
+        i_short = bisect.bisect_right(t, t[j] - min_cover_s + _EPS_S, first, j + 1) - 1
+        if i_short < first:
+            return None
+        i_long = bisect.bisect_left(t, t[j] - max_cover_s - _EPS_S, first, j + 1)
+        i_long = min(i_long, i_short)
+        step = max(1, (i_short - i_long) // _MAX_CANDIDATES)
+        starts = list(range(i_long, i_short, step))
+        starts.append(i_short)
+        for i in starts:  # longest first: the first pass is the best-averaged window
+            w = self._test(ch, i, j)
+            if w is not None:
+                return w
+        return None
+
+    def _test(self, ch: _Channel, i: int, j: int) -> _Window | None:
+        p = self.params
+        n = j - i + 1
+        if n < 3:
+            return None
+        f = ch.fit(i, j)
+        d = ch.d_g
+        span_s = ch.t[j] - ch.t[i]
+        if abs(f.slope_g_per_s) * span_s > p.max_drift_d * d:
+            return None
+        noise = ch.noise_g
+        # a reading toggling between two neighbouring steps scatters by up to d/2: that is
+        # still within +/-1 d, so the motion test never asks for less
+        ref = max(noise, 0.5 * d)
+        if f.resid_var > ref * ref * chi2_quantile_ratio(n - 2, p.motion_confidence):
+            return None
+        if max(noise * noise, f.resid_var) / n > (p.resolution_d * d) ** 2:
+            return None
+        return _Window(i, j, f, ch.t[i], ch.t[j], ch.t[i])
+
+    def _try_capture(self, t_s: float) -> list[CaptureOutput]:
+        p = self.params
+        results: dict[str, _Window] = {}
+        for c in self._ch.values():
+            if c.result is None or c.last_t is None or t_s - c.last_t > p.max_gap_s:
+                return []
+            results[c.name] = c.result
+        start = max(w.cover_start_s for w in results.values())
+        end = min(w.t_end_s for w in results.values())
+        if end - start < p.min_stable_s - _EPS_S:
+            return []
+        windows = {
+            name: WindowStats(
+                mean_g=w.fit.mean - self._ch[name].offset_g,
+                stdev_g=math.sqrt(w.fit.var),
+                n=w.fit.n,
+                t_start_s=w.t_start_s,
+                t_end_s=w.t_end_s,
+            )
+            for name, w in results.items()
+        }
+        t_placed = self._t_placed if self._t_placed is not None else t_s
+        cap = Captured(t_s=t_s, t_placed_s=t_placed, windows=windows)
+        self._captured_total_g = cap.total_g
+        out = self._clear_unsettled(t_s, "settled")
+        out.extend(self._set_state(CaptureState.CAPTURED, t_s, f"{cap.total_g:.2f} g"))
+        out.append(cap)
+        out.extend(self._set_state(CaptureState.HOLDING, t_s, "club on the supports"))
+        self._restart_all()
+        return out
+
+    # --- empty: noise learning and zero tracking ---
+    def _empty_housekeeping(self, ch: _Channel, t_s: float) -> list[CaptureOutput]:
+        p = self.params
+        j = len(ch.t) - 1
+        if j < 0 or ch.last_t != ch.t[j]:
+            return []  # the newest sample was not usable
+        if p.learn_noise:
+            self._learn_noise(ch, j)
+        if not p.zero_tracking:
+            return []
+        first = max(ch.window_from, ch.head)
+        if ch.zero_last_s is None:
+            ch.zero_last_s = t_s
+            return []
+        if t_s - ch.zero_last_s < _ZERO_TRACK_INTERVAL_S or j < first:
+            return []
+        w = self._longest_stable(ch, first, j, p.zero_tracking_window_s, p.zero_tracking_window_s)
+        if w is None:
+            return []
+        return self._track_zero(ch, w, t_s)
+
+    def _learn_noise(self, ch: _Channel, j: int) -> None:
+        """Scatter of non-overlapping empty windows about their fitted line."""
+        i = max(ch.noise_from, ch.head)
+        if j - i + 1 < 5 or ch.t[j] - ch.t[i] < self.params.zero_tracking_window_s:
+            return
+        f = ch.fit(i, j)
+        ch.noise_from = j + 1
+        if abs(f.mean - ch.offset_g) > self.params.empty_threshold_g:
+            return  # something rests on it after all
+        ch.noise_estimates.append(math.sqrt(f.resid_var))
+
+    def _track_zero(self, ch: _Channel, w: _Window, t_s: float) -> list[CaptureOutput]:
+        p = self.params
+        d = ch.d_g
+        last = ch.zero_last_s if ch.zero_last_s is not None else t_s
+        elapsed = min(t_s - last, p.zero_tracking_window_s)
+        ch.zero_last_s = t_s
+        error = w.fit.mean - ch.offset_g
+        if abs(error) > p.zero_tracking_band_d * d:
+            return []  # not "at zero": something small is on the supports, or a step
+        se = math.sqrt(max(ch.noise_g**2, w.fit.resid_var) / w.fit.n)
+        if abs(error) < 2.0 * se:
+            return []  # not distinguishable from noise: do not let the zero wander
+        step = p.zero_tracking_rate_d_per_s * d * elapsed  # at most 0.5 d/s (OIML R 76-1 4.5.7)
+        correction = max(-step, min(step, error))
+        limit = p.zero_tracking_limit_fraction * self.params.capacity_for(ch.name)
+        new = ch.offset_g + correction
+        out: list[CaptureOutput] = []
+        if abs(new) > limit:  # 4 % of capacity (OIML R 76-1 4.5.1)
+            new = math.copysign(limit, new)
+            if ch.name not in self._zero_warned:
+                self._zero_warned.add(ch.name)
+                out.append(
+                    Warning(
+                        "zero_out_of_range",
+                        t_s,
+                        f"{ch.name}: zero has drifted beyond {limit:g} g "
+                        f"({p.zero_tracking_limit_fraction:.0%} of capacity); zero or recalibrate",
+                        ch.name,
+                    )
+                )
+        if new != ch.offset_g:
+            ch.offset_g = new
+            ch.latest_net_g = ch.x[-1] - new
+            out.append(ZeroTracked(ch.name, new, t_s))
+        return out
+
+    # --- helpers ---
+    def _total_net_g(self) -> float:
+        return sum(c.latest_net_g for c in self._ch.values())
+
+    def _latest_t(self) -> float:
+        ts = [c.last_t for c in self._ch.values() if c.last_t is not None]
+        return max(ts) if ts else (self._t_first or 0.0)

@@ -1,0 +1,499 @@
+"""Capture engine on synthetic streams: steps, ramps, oscillations, bumps, timing across channels.
+
+Virtual time only: every stream is generated and fed with its own timestamps, so nothing here
+depends on the machine's speed.
+"""
+
+from __future__ import annotations
+
+import math
+import random
+from collections.abc import Callable, Iterable
+
+import pytest
+
+from daemon.capture import (
+    Captured,
+    CaptureEngine,
+    CaptureOutput,
+    StateChanged,
+    Warning,
+    ZeroTracked,
+    chi2_quantile_ratio,
+)
+from daemon.capture_params import CaptureParams
+from daemon.events import CaptureState
+from drivers.reading import Flag
+
+Signal = Callable[[float], float]
+D_G = 0.1  # display step of the HX711 presets
+
+
+def feed(
+    engine: CaptureEngine,
+    signals: dict[str, Signal],
+    rates_hz: dict[str, float],
+    t_end_s: float,
+    *,
+    noise_g: float = 0.03,
+    seed: int = 1,
+    flags: Callable[[str, float, float], Flag] | None = None,
+    t_start_s: float = 0.0,
+    offsets_s: dict[str, float] | None = None,
+    round_to_d: bool = True,
+) -> list[CaptureOutput]:
+    """Sample each signal at its rate (noise added, rounded to d unless told otherwise: an HX711
+    channel converted from counts keeps finer steps) and feed the engine in time order."""
+    rng = random.Random(seed)
+    events: list[tuple[float, str]] = []
+    for ch, rate in rates_hz.items():
+        k = 0
+        off = (offsets_s or {}).get(ch, 0.0)
+        while (t := t_start_s + off + k / rate) < t_end_s:
+            events.append((t, ch))
+            k += 1
+    events.sort()
+    out: list[CaptureOutput] = []
+    for t, ch in events:
+        v = signals[ch](t) + rng.gauss(0.0, noise_g)
+        if round_to_d:
+            v = round(v / D_G) * D_G
+        f = flags(ch, t, v) if flags is not None else Flag.NONE
+        out.extend(engine.on_sample(ch, t, v, f))
+    return out
+
+
+def captures(outs: Iterable[CaptureOutput]) -> list[Captured]:
+    return [o for o in outs if isinstance(o, Captured)]
+
+
+def warnings(outs: Iterable[CaptureOutput], kind: str) -> list[Warning]:
+    return [o for o in outs if isinstance(o, Warning) and o.kind == kind]
+
+
+def step(t_on: float, value: float, t_off: float = math.inf) -> Signal:
+    return lambda t: value if t_on <= t < t_off else 0.0
+
+
+def ringing(t_on: float, value: float, freq_hz: float, zeta: float, overshoot: float) -> Signal:
+    """Textbook free response of an under-damped second-order system settling on ``value``."""
+    wn = 2 * math.pi * freq_hz
+    wd = wn * math.sqrt(1 - zeta**2)
+
+    def f(t: float) -> float:
+        if t < t_on:
+            return 0.0
+        tau = t - t_on
+        return value + overshoot * value * math.exp(-zeta * wn * tau) * math.cos(wd * tau)
+
+    return f
+
+
+TWO = ["beam/0", "beam/1"]
+RATES_10 = {"beam/0": 10.0, "beam/1": 10.0}
+
+
+def engine_10hz(**overrides: object) -> CaptureEngine:
+    return CaptureEngine(TWO, CaptureParams.preset("hx711_10hz", **overrides))
+
+
+def test_step_is_captured_once_after_the_minimum_window() -> None:
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": step(3.0, 140.0), "beam/1": step(3.0, 260.0)}, RATES_10, 8.0)
+    caps = captures(outs)
+    assert len(caps) == 1
+    c = caps[0]
+    # OIML R 76-1 4.4.2 (domain.md): stable for at least 0.4 s before a result is recorded
+    assert c.t_s >= 3.0 + 0.4 - 1e-9
+    assert c.t_s <= 3.0 + 1.0  # a clean step needs no more than a short window
+    assert c.windows["beam/0"].mean_g == pytest.approx(140.0, abs=D_G)
+    assert c.windows["beam/1"].mean_g == pytest.approx(260.0, abs=D_G)
+    assert c.total_g == pytest.approx(400.0, abs=D_G)
+    assert c.t_placed_s == pytest.approx(3.0)
+    assert e.state is CaptureState.HOLDING
+    states = [o.state for o in outs if isinstance(o, StateChanged)]
+    assert states == [CaptureState.SETTLING, CaptureState.CAPTURED, CaptureState.HOLDING]
+
+
+def test_ramp_is_not_captured_until_it_stops() -> None:
+    # load creeping at 2 g/s (20 d/s) from 1 s to 4 s, then constant
+    def creep(t: float) -> float:
+        return 0.0 if t < 1.0 else 50.0 + 2.0 * (min(t, 4.0) - 1.0)
+
+    e = engine_10hz(placement_threshold_g=10.0)
+    outs = feed(e, {"beam/0": creep, "beam/1": step(1.0, 100.0)}, RATES_10, 7.0)
+    caps = captures(outs)
+    assert len(caps) == 1
+    assert caps[0].t_s >= 4.0 + 0.4 - 1e-9
+    assert caps[0].windows["beam/0"].mean_g == pytest.approx(56.0, abs=D_G)
+
+
+def test_slow_drift_below_one_division_per_window_is_accepted() -> None:
+    # 0.1 d/s creep: the trend moves far less than 1 d across any window, so it counts as stable
+    def creep(t: float) -> float:
+        return 0.0 if t < 1.0 else 200.0 + 0.01 * (t - 1.0)
+
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": creep, "beam/1": step(1.0, 100.0)}, RATES_10, 4.0)
+    assert len(captures(outs)) == 1
+
+
+def test_damped_oscillation_is_captured_after_it_has_died_down() -> None:
+    freq, zeta, over = 3.0, 0.15, 0.25
+    sig0 = ringing(2.0, 150.0, freq, zeta, over)
+    sig1 = ringing(2.0, 250.0, freq, zeta, over)
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": sig0, "beam/1": sig1}, RATES_10, 10.0)
+    caps = captures(outs)
+    assert len(caps) == 1
+    c = caps[0]
+    # envelope 0.25*250*exp(-zeta*wn*tau) falls below 1 d at tau = ln(625)/(zeta*wn) = 2.28 s
+    decay = zeta * 2 * math.pi * freq
+    tau_1d = math.log(over * 250.0 / D_G) / decay
+    assert c.t_s > 2.0 + 0.5 * tau_1d  # never while it still swings by many d
+    assert c.t_s < 2.0 + tau_1d + 1.5
+    assert c.windows["beam/1"].mean_g == pytest.approx(250.0, abs=2 * D_G)
+    assert c.windows["beam/0"].mean_g == pytest.approx(150.0, abs=2 * D_G)
+
+
+def test_heavy_noise_needs_longer_averaging_but_gets_the_mean_right() -> None:
+    params = CaptureParams.preset("hx711_80hz")  # noise prior 0.15 g = 1.5 d
+    e = CaptureEngine(TWO, params)
+    rates = {"beam/0": 80.0, "beam/1": 80.0}
+    outs = feed(
+        e, {"beam/0": step(3.0, 120.0), "beam/1": step(3.0, 280.0)}, rates, 8.0, noise_g=0.15
+    )
+    caps = captures(outs)
+    assert len(caps) == 1
+    w = caps[0].windows["beam/1"]
+    assert w.n >= 9  # (1.5 d / 0.5 d)^2 = 9 samples to reach the required standard error
+    assert w.mean_g == pytest.approx(280.0, abs=D_G)
+
+
+def test_bump_delays_capture_until_it_has_died_down() -> None:
+    def with_bump(value: float) -> Signal:
+        def f(t: float) -> float:
+            if t < 1.0:
+                return 0.0
+            v = value
+            if t >= 1.3:  # a knock on the bench 0.3 s after placement: 40 g impulse response
+                s = t - 1.3
+                v += 40.0 * math.exp(-3.0 * s) * math.sin(2 * math.pi * 4.0 * s)
+            return v
+
+        return f
+
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": with_bump(150.0), "beam/1": with_bump(250.0)}, RATES_10, 8.0)
+    caps = captures(outs)
+    assert len(caps) == 1
+    # 40 g * exp(-3 s) < 1 d only after ln(400)/3 = 2.0 s
+    assert caps[0].t_s > 1.3 + 1.0
+    assert caps[0].total_g == pytest.approx(400.0, abs=2 * D_G)
+
+
+def test_club_left_on_the_beam_is_captured_once_and_bumps_while_holding_do_not_recapture() -> None:
+    def held(value: float) -> Signal:
+        def f(t: float) -> float:
+            if t < 1.0:
+                return 0.0
+            v = value
+            for tb in (10.0, 30.0):
+                if t >= tb:
+                    s = t - tb
+                    v += 20.0 * math.exp(-3.0 * s) * math.sin(2 * math.pi * 4.0 * s)
+            return v
+
+        return f
+
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": held(150.0), "beam/1": held(250.0)}, RATES_10, 61.0)
+    assert len(captures(outs)) == 1
+    assert e.state is CaptureState.HOLDING
+
+
+def test_removal_rearms_and_the_next_club_is_captured() -> None:
+    def two_clubs(a: float, b: float) -> Signal:
+        return lambda t: a if 1.0 <= t < 4.0 else (b if 6.0 <= t < 9.0 else 0.0)
+
+    e = engine_10hz()
+    outs = feed(e, {"beam/0": two_clubs(150, 160), "beam/1": two_clubs(250, 240)}, RATES_10, 11.0)
+    caps = captures(outs)
+    assert [round(c.total_g) for c in caps] == [400, 400]
+    assert caps[0].windows["beam/0"].mean_g == pytest.approx(150.0, abs=D_G)
+    assert caps[1].windows["beam/0"].mean_g == pytest.approx(160.0, abs=D_G)
+    states = [o.state for o in outs if isinstance(o, StateChanged)]
+    assert states.count(CaptureState.EMPTY) == 2
+    assert e.state is CaptureState.EMPTY
+
+
+def test_lifted_before_settling_is_not_captured() -> None:
+    sig = ringing(1.0, 200.0, 2.0, 0.05, 0.3)  # still swinging by grams when lifted at 2.5 s
+    e = engine_10hz()
+    outs = feed(
+        e,
+        {"beam/0": lambda t: sig(t) if t < 2.5 else 0.0, "beam/1": step(1.0, 200.0, 2.5)},
+        RATES_10,
+        6.0,
+    )
+    assert captures(outs) == []
+    assert e.state is CaptureState.EMPTY
+
+
+def test_rearm_command_captures_the_club_on_the_supports_again() -> None:
+    e = engine_10hz()
+    sigs = {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}
+    outs = feed(e, sigs, RATES_10, 4.0)
+    assert len(captures(outs)) == 1
+    re = e.rearm()
+    assert [o.state for o in re if isinstance(o, StateChanged)] == [CaptureState.SETTLING]
+    outs2 = feed(e, sigs, RATES_10, 7.0, t_start_s=4.0)
+    assert len(captures(outs2)) == 1
+    assert captures(outs2)[0].t_s >= 4.0 + 0.4 - 1e-9  # the new window starts after the re-arm
+
+
+def test_channels_at_different_rates_need_overlapping_stable_windows() -> None:
+    # beam/0 at 80 Hz: stable 1.0-1.9 s, swinging 1.9-4.0 s, stable after.
+    # beam/1 at 10 Hz: swinging until 2.2 s, stable after.
+    # Each is stable for > 0.4 s on its own before 4 s, but never both at once.
+    def a(t: float) -> float:
+        if t < 1.0:
+            return 0.0
+        swing = 5.0 * math.sin(2 * math.pi * 3.0 * t) if 1.9 <= t < 4.0 else 0.0
+        return 150.0 + swing
+
+    def b(t: float) -> float:
+        if t < 1.0:
+            return 0.0
+        return 250.0 + (5.0 * math.sin(2 * math.pi * 2.0 * t) if t < 2.2 else 0.0)
+
+    params = CaptureParams.preset("hx711_10hz", noise_g=0.03)
+    e = CaptureEngine(TWO, params)
+    outs = feed(
+        e,
+        {"beam/0": a, "beam/1": b},
+        {"beam/0": 80.0, "beam/1": 10.0},
+        7.0,
+        offsets_s={"beam/1": 0.037},
+    )
+    caps = captures(outs)
+    assert len(caps) == 1
+    c = caps[0]
+    assert c.t_s >= 4.0 + 0.4 - 1e-9
+    w0, w1 = c.windows["beam/0"], c.windows["beam/1"]
+    assert w0.t_start_s >= 4.0 - 1e-9  # no window reaches back into the swing
+    assert w1.t_start_s >= 2.2 - 1e-9
+    assert min(w0.t_end_s, w1.t_end_s) - max(w0.t_start_s, w1.t_start_s) >= 0.4 - 0.1 - 1e-9
+
+
+def test_overload_is_never_captured_and_clears() -> None:
+    # capacity 1000 g + 9 d = 1000.9 g (OIML R 76-1 4.2.3); 1001 g on beam/1 is an overload
+    e = engine_10hz()
+    sigs = {"beam/0": step(1.0, 150.0, 5.0), "beam/1": step(1.0, 1001.0, 5.0)}
+    outs = feed(e, sigs, RATES_10, 7.0, noise_g=0.0)
+    assert captures(outs) == []
+    ov = warnings(outs, "overload")
+    assert ov and ov[0].active and ov[0].channel == "beam/1"
+    assert [w.active for w in ov] == [True, False]  # cleared when it read in range again
+
+
+def test_just_below_the_overload_limit_is_a_weight() -> None:
+    e = engine_10hz()
+    sigs = {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 1000.8)}
+    outs = feed(e, sigs, RATES_10, 4.0, noise_g=0.0)
+    assert len(captures(outs)) == 1
+    assert warnings(outs, "overload") == []
+
+
+def test_overload_flag_from_the_device_is_never_a_weight() -> None:
+    e = engine_10hz()
+    sigs = {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}
+    outs = feed(
+        e,
+        sigs,
+        RATES_10,
+        6.0,
+        flags=lambda ch, t, v: Flag.OVERLOAD if ch == "beam/1" and t >= 1.0 else Flag.NONE,
+    )
+    assert captures(outs) == []
+    assert warnings(outs, "overload")
+
+
+def test_fault_and_nan_samples_break_the_window_and_do_not_crash() -> None:
+    e = engine_10hz()
+    sigs = {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}
+    outs = feed(e, sigs, RATES_10, 1.25)
+    outs += e.on_sample("beam/0", 1.3, float("nan"))
+    outs += e.on_sample("beam/1", 1.3, 250.0, Flag.FAULT)
+    outs += feed(e, sigs, RATES_10, 5.0, t_start_s=1.4)
+    caps = captures(outs)
+    assert len(caps) == 1
+    assert caps[0].windows["beam/0"].t_start_s > 1.3
+    assert caps[0].windows["beam/1"].t_start_s > 1.3
+
+
+def test_will_not_settle_warning_and_late_capture() -> None:
+    def restless(t: float) -> float:
+        if t < 1.0:
+            return 0.0
+        return 200.0 + (3.0 * math.sin(2 * math.pi * 1.7 * t) if t < 9.0 else 0.0)
+
+    e = engine_10hz(settle_timeout_s=4.0)
+    outs = feed(e, {"beam/0": restless, "beam/1": step(1.0, 200.0)}, RATES_10, 12.0)
+    ws = warnings(outs, "will_not_settle")
+    assert ws[0].active and ws[0].t_s == pytest.approx(5.0, abs=0.11)
+    assert ws[-1].active is False  # cleared by the late capture
+    caps = captures(outs)
+    assert len(caps) == 1 and caps[0].t_s > 9.0
+    states = [o.state for o in outs if isinstance(o, StateChanged)]
+    assert CaptureState.UNSETTLED in states
+
+
+def test_tick_raises_timeout_and_offline_when_samples_stop() -> None:
+    e = engine_10hz(settle_timeout_s=3.0, channel_timeout_s=2.0)
+    outs = feed(e, {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}, RATES_10, 1.05)
+    assert e.state is CaptureState.SETTLING
+    outs = e.tick(2.5)
+    assert e.state is CaptureState.SETTLING and outs == []
+    outs = e.tick(3.2)
+    assert e.state is CaptureState.OFFLINE
+    assert "beam/0" in outs[-1].detail if isinstance(outs[-1], StateChanged) else False
+    # both channels come back with the club still on: a fresh capture, no window spans the gap
+    outs = feed(e, {"beam/0": step(0, 150.0), "beam/1": step(0, 250.0)}, RATES_10, 6.0, t_start_s=4)
+    caps = captures(outs)
+    assert len(caps) == 1 and caps[0].windows["beam/0"].t_start_s >= 4.0
+
+
+def test_settle_timeout_by_tick_alone() -> None:
+    e = engine_10hz(settle_timeout_s=1.0, channel_timeout_s=5.0)
+    feed(e, {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}, RATES_10, 1.05)
+    outs = e.tick(2.1)
+    assert warnings(outs, "will_not_settle") and e.state is CaptureState.UNSETTLED
+
+
+def test_device_flags_veto_require_and_trust() -> None:
+    sigs = {"bal/0": step(1.0, 400.0)}
+    params = CaptureParams.preset("precision_balance")
+
+    def motion_until(t_stable: float) -> Callable[[str, float, float], Flag]:
+        return lambda ch, t, v: Flag.STABLE if t >= t_stable else Flag.MOTION
+
+    # veto: the balance says MOTION until 3 s although its readings are steady
+    e = CaptureEngine(["bal/0"], params)
+    outs = feed(e, sigs, {"bal/0": 10.0}, 5.0, noise_g=0.0, flags=motion_until(3.0))
+    assert captures(outs)[0].t_s >= 3.0
+    # ignore: the engine's own test decides
+    e = CaptureEngine(["bal/0"], params.model_copy(update={"device_flags": "ignore"}))
+    outs = feed(e, sigs, {"bal/0": 10.0}, 5.0, noise_g=0.0, flags=motion_until(3.0))
+    assert captures(outs)[0].t_s < 2.0
+    # require: no STABLE flag ever means no capture
+    e = CaptureEngine(["bal/0"], params.model_copy(update={"device_flags": "require"}))
+    outs = feed(e, sigs, {"bal/0": 10.0}, 5.0, noise_g=0.0, flags=lambda c, t, v: Flag.NONE)
+    assert captures(outs) == []
+    # trust: the first STABLE reading is enough even while the values still swing
+    swing = ringing(1.0, 400.0, 2.0, 0.1, 0.1)
+    e = CaptureEngine(["bal/0"], params.model_copy(update={"device_flags": "trust"}))
+    outs = feed(e, {"bal/0": swing}, {"bal/0": 10.0}, 5.0, flags=motion_until(1.5))
+    assert captures(outs)[0].t_s == pytest.approx(1.5, abs=0.11)
+
+
+def test_zero_tracking_follows_slow_drift_while_empty() -> None:
+    # zero drifting at 0.2 d/s: within the 0.5 d/s a tracker may follow (OIML R 76-1 4.5.7)
+    e = CaptureEngine(["beam/0"], CaptureParams.preset("hx711_10hz", noise_g=0.01))
+    drift = 0.2 * D_G
+    outs = feed(
+        e, {"beam/0": lambda t: drift * t}, {"beam/0": 10.0}, 30.0, noise_g=0.01, round_to_d=False
+    )
+    assert [o for o in outs if isinstance(o, ZeroTracked)]
+    assert e.zero_offsets_g["beam/0"] == pytest.approx(drift * 30.0, abs=1.5 * D_G)
+
+
+def test_zero_tracking_rate_is_bounded_to_half_a_division_per_second() -> None:
+    # a 0.4 d step while empty: the tracker removes it at no more than 0.5 d/s
+    # (OIML R 76-1 4.5.7 via domain.md)
+    e = CaptureEngine(["beam/0"], CaptureParams.preset("hx711_10hz", noise_g=0.005))
+    sig = step(5.0, 0.04)
+    outs = feed(e, {"beam/0": sig}, {"beam/0": 10.0}, 15.0, noise_g=0.0, round_to_d=False)
+    tracked = [o for o in outs if isinstance(o, ZeroTracked)]
+    assert tracked and tracked[-1].offset_g == pytest.approx(0.04, abs=1e-9)
+    prev_t, prev = 5.0, 0.0
+    for z in tracked:
+        rate = abs(z.offset_g - prev) / (z.t_s - prev_t)
+        assert rate <= 0.5 * D_G + 1e-9
+        prev_t, prev = z.t_s, z.offset_g
+
+
+def test_zero_tracking_stops_at_four_percent_of_capacity() -> None:
+    # total tracking correction within 4 % of capacity (OIML R 76-1 4.5.1 via domain.md):
+    # capacity 10 g here so the 0.4 g limit is reached within a short stream
+    params = CaptureParams.preset(
+        "hx711_10hz",
+        capacity_g=10.0,
+        noise_g=0.005,
+        placement_threshold_g=2.0,
+        empty_threshold_g=1.0,
+    )
+    e = CaptureEngine(["beam/0"], params)
+    outs = feed(
+        e, {"beam/0": lambda t: 0.045 * t}, {"beam/0": 10.0}, 20.0, noise_g=0.0, round_to_d=False
+    )
+    assert abs(e.zero_offsets_g["beam/0"]) <= 0.04 * 10.0 + 1e-12
+    assert e.zero_offsets_g["beam/0"] == pytest.approx(0.4)
+    assert warnings(outs, "zero_out_of_range")
+    cleared = e.reset_zero("beam/0")
+    assert e.zero_offsets_g["beam/0"] == 0.0
+    assert any(isinstance(o, Warning) and not o.active for o in cleared)
+
+
+def test_zero_tracking_does_not_act_on_a_load_or_a_step_beyond_its_band() -> None:
+    e = CaptureEngine(["beam/0"], CaptureParams.preset("hx711_10hz", noise_g=0.01))
+    # 2 g left on the supports (below the placement threshold, beyond the 0.5 d band)
+    outs = feed(e, {"beam/0": step(2.0, 2.0)}, {"beam/0": 10.0}, 20.0, noise_g=0.01)
+    assert abs(e.zero_offsets_g["beam/0"]) < 0.5 * D_G
+    # and nothing tracks while a club is on
+    e2 = engine_10hz()
+    outs = feed(e2, {"beam/0": step(0.5, 150.0), "beam/1": step(0.5, 250.0)}, RATES_10, 30.0)
+    assert not [o for o in outs if isinstance(o, ZeroTracked) and o.t_s > 0.5]
+
+
+def test_captured_mean_is_net_of_the_tracked_zero() -> None:
+    e = CaptureEngine(["beam/0"], CaptureParams.preset("hx711_10hz", noise_g=0.005))
+    sig = lambda t: 0.04 + (300.0 if t >= 15.0 else 0.0)  # noqa: E731
+    outs = feed(e, {"beam/0": sig}, {"beam/0": 10.0}, 18.0, noise_g=0.0, round_to_d=False)
+    caps = captures(outs)
+    assert len(caps) == 1
+    assert caps[0].windows["beam/0"].mean_g == pytest.approx(300.0, abs=1e-6)
+
+
+def test_bad_input_is_refused_or_ignored() -> None:
+    e = engine_10hz()
+    with pytest.raises(ValueError, match="unknown channel 'beam/9'"):
+        e.on_sample("beam/9", 0.0, 1.0)
+    e.on_sample("beam/0", 1.0, 0.0)
+    assert e.on_sample("beam/0", 0.5, 0.0) == []  # out of order: ignored
+    assert e.dropped_samples == 1
+    with pytest.raises(ValueError, match="unique"):
+        CaptureEngine(["a", "a"], CaptureParams())
+
+
+def test_chi_square_quantiles_match_tables() -> None:
+    # NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.4 (upper critical values):
+    # chi2(0.999, 10) = 29.588, chi2(0.99, 5) = 15.086, chi2(0.999, 30) = 59.703
+    assert chi2_quantile_ratio(10, 0.999) * 10 == pytest.approx(29.588, rel=0.02)
+    assert chi2_quantile_ratio(5, 0.99) * 5 == pytest.approx(15.086, rel=0.02)
+    assert chi2_quantile_ratio(30, 0.999) * 30 == pytest.approx(59.703, rel=0.01)
+
+
+def test_long_running_stream_stays_precise() -> None:
+    # hours of samples: the running sums are re-centred, so a capture late on is still exact
+    e = CaptureEngine(["beam/0"], CaptureParams.preset("hx711_80hz", noise_g=0.001))
+    t = 0.0
+    for k in range(60_000):
+        t = 10_000.0 + k / 80.0
+        e.on_sample("beam/0", t, 0.0)
+    outs: list[CaptureOutput] = []
+    for k in range(1, 200):
+        outs += e.on_sample("beam/0", t + k / 80.0, 437.25)
+    caps = captures(outs)
+    assert len(caps) == 1
+    assert caps[0].windows["beam/0"].mean_g == pytest.approx(437.25, abs=1e-6)
