@@ -1,0 +1,115 @@
+"""MOI about the butt from a pendulum: textbook rod cases, parallel axis, large swings."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from daemon.physics.club import weight_and_balance_bench
+from daemon.physics.moi import (
+    STANDARD_GRAVITY_M_S2,
+    PendulumError,
+    large_swing_factor,
+    moi_about_butt_g_in2,
+    moi_about_butt_kg_cm2,
+    moi_about_butt_numbers,
+    moi_about_pivot_g_in2,
+    period_for_moi_s,
+)
+from daemon.physics.uncertainty import UncertainValue as U
+
+G_IN_S2 = STANDARD_GRAVITY_M_S2 / 0.0254  # 9.80665 m/s^2 exactly (3rd CGPM, 1901)
+
+
+def _rod_period_about(pivot_in: float, mass_g: float, length_in: float) -> float:
+    """Small-swing period of a uniform rod about a point ``pivot_in`` from one end.
+
+    Textbook physical pendulum (phys.libretexts.org, physical pendulum): I_cm = m L^2/12,
+    I_p = I_cm + m d^2 (parallel axis), T = 2 pi sqrt(I_p / (m g d)).
+    """
+    d = length_in / 2 - pivot_in
+    i_p = mass_g * length_in**2 / 12 + mass_g * d * d
+    return 2 * math.pi * math.sqrt(i_p / (mass_g * G_IN_S2 * d))
+
+
+def test_uniform_rod_about_its_end() -> None:
+    # I = m L^2 / 3 and T = 2 pi sqrt(2 L / (3 g)) for a rod swung from its end (textbook).
+    m, length = 400.0, 44.0
+    period = 2 * math.pi * math.sqrt(2 * length / (3 * G_IN_S2))
+    assert _rod_period_about(0.0, m, length) == pytest.approx(period)
+    assert moi_about_pivot_g_in2(m, length / 2, 0.0, period) == pytest.approx(m * length**2 / 3)
+
+
+@pytest.mark.parametrize("pivot_in", [0.5, 1.0, 2.0, 4.0])
+def test_rod_about_a_pivot_near_the_butt_recovers_the_end_moi(pivot_in: float) -> None:
+    # Parallel-axis theorem (textbook): whatever the pivot, the MOI about the end is m L^2/3.
+    m, length = 400.0, 44.0
+    period = _rod_period_about(pivot_in, m, length)
+    assert moi_about_butt_g_in2(m, length / 2, pivot_in, period) == pytest.approx(
+        m * length**2 / 3, rel=1e-12
+    )
+
+
+def test_large_swing_factor() -> None:
+    # T = T0 (1 + theta0^2/16) for moderate swings (phys.libretexts.org, pendulum chapters).
+    for degrees in (2.0, 5.0, 10.0):
+        theta = math.radians(degrees)
+        assert large_swing_factor(theta) == pytest.approx(1 + theta**2 / 16, rel=1e-4)
+    # From memory: the next series term is 11 theta^4 / 3072; at 90 deg T/T0 = 1.18034.
+    theta = math.radians(30.0)
+    assert large_swing_factor(theta) == pytest.approx(
+        1 + theta**2 / 16 + 11 * theta**4 / 3072, rel=1e-4
+    )
+    assert large_swing_factor(math.pi / 2) == pytest.approx(1.18034, abs=1e-5)
+    assert large_swing_factor(0.0) == 1.0
+
+
+def test_amplitude_correction_removes_the_slow_down() -> None:
+    m, length, pivot = 400.0, 44.0, 1.0
+    t0 = _rod_period_about(pivot, m, length)
+    theta = math.radians(15.0)
+    seen = t0 * large_swing_factor(theta)
+    assert moi_about_butt_g_in2(m, 22.0, pivot, seen, amplitude_rad=theta) == pytest.approx(
+        m * length**2 / 3
+    )
+    # Ignoring the amplitude overstates the MOI.
+    assert moi_about_butt_g_in2(m, 22.0, pivot, seen) > m * length**2 / 3
+
+
+@given(st.floats(2300.0, 3500.0), st.floats(0.5, 3.0), st.floats(-15.0, 15.0))
+def test_period_for_moi_is_the_inverse(moi_kg_cm2: float, pivot_in: float, deg: float) -> None:
+    w, bp = 420.0, 29.0
+    moi_g_in2 = moi_kg_cm2 * 1000.0 / 2.54**2
+    t = period_for_moi_s(moi_g_in2, w, bp, pivot_in, amplitude_rad=math.radians(abs(deg)))
+    back = moi_about_butt_kg_cm2(w, bp, pivot_in, t, amplitude_rad=math.radians(abs(deg)))
+    assert back == pytest.approx(moi_kg_cm2, rel=1e-9)
+
+
+def test_local_gravity_matters() -> None:
+    # The pendulum scales with g: a 0.5 % higher g gives a 0.5 % higher MOI about the pivot.
+    a = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=9.78)
+    b = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=9.78 * 1.005)
+    assert b / a == pytest.approx(1.005)
+
+
+def test_bad_pendulum_inputs() -> None:
+    with pytest.raises(PendulumError, match="pivot"):
+        moi_about_butt_g_in2(420.0, 29.0, 30.0, 1.6)
+    with pytest.raises(PendulumError, match="gravity"):
+        moi_about_butt_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=32.2)
+    # I_butt >= m BP^2 since I about the CG cannot be negative (parallel axis): 420 g at
+    # 29 in needs at least 353,220 g*in^2 (2279 kg*cm^2).
+    with pytest.raises(PendulumError, match="point mass"):
+        period_for_moi_s(2000.0 * 1000.0 / 2.54**2, 420.0, 29.0, 1.0)
+
+
+def test_moi_uncertainty_from_the_period() -> None:
+    # I_pivot is proportional to T^2: u(I_pivot)/I_pivot = 2 u(T)/T (GUM eq. 12).
+    bench = weight_and_balance_bench(U(420.0), U(29.0))
+    _value, u = moi_about_butt_numbers(bench, U(1.0), U(1.6, 0.001))
+    i_pivot = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6)
+    assert u == pytest.approx(2 * (2 * 0.001 / 1.6) * i_pivot, rel=1e-5)
+    assert moi_about_butt_numbers(bench, U(1.0), U(1.6))[1] is None
