@@ -124,7 +124,7 @@ class RecordingWriter:
         else:
             self._file = target
             self._owns = False
-        self._file.write(header.model_dump_json() + "\n")
+        self._file.write(json.dumps(header.model_dump(mode="json")) + "\n")
         self._file.flush()
 
     def write(self, chunk: Chunk) -> None:

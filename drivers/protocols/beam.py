@@ -116,7 +116,7 @@ class BeamDriver(LineDriver):
             return self._hello(rest, t_mono_s)
         if keyword in ("OK", "ERR"):
             first = rest.split(" ", 1)[0].upper()
-            command = _COMMAND_ECHOES.get(first, first.lower() or "?")
+            command = _COMMAND_ECHOES.get(first, first.lower() if keyword == "OK" else "?")
             self._reply(CommandReply(self.device, command, keyword == "OK", rest, t_mono_s, line))
             return []
         raise FrameError(f"unknown message #{keyword}")

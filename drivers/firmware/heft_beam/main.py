@@ -1,0 +1,98 @@
+"""heft beam reference firmware (MicroPython, RP2040 or ESP32, one or two HX711).
+
+Speaks heft-beam/1 over the board's USB serial console: a HELLO at boot, one sample line per
+conversion, and the commands !ID, !RATE <hz>, !REBOOT (docs/protocols.md section e). Copy
+framing.py, hx711.py, config.py and main.py to the board (e.g. ``mpremote cp``).
+"""
+
+import sys
+import time
+
+import machine
+import select
+import ubinascii
+
+import config
+import framing
+from hx711 import ADC_BITS, HX711
+
+
+def serial_number():
+    return ubinascii.hexlify(machine.unique_id()).decode()
+
+
+class Beam:
+    def __init__(self):
+        self.cells = [
+            HX711(dout, sck, gain=config.GAIN, rate_pin=config.RATE_PIN)
+            for dout, sck in config.CHANNELS
+        ]
+        self.rate_hz = config.DEFAULT_RATE_HZ
+        for cell in self.cells:
+            cell.set_rate(self.rate_hz)
+        self.seq = 0
+        self.clock = framing.MillisClock(time.ticks_ms())
+        self.sn = serial_number()
+        self.out = sys.stdout.buffer if hasattr(sys.stdout, "buffer") else sys.stdout
+        self.inp = sys.stdin.buffer if hasattr(sys.stdin, "buffer") else sys.stdin
+        self.poll = select.poll()
+        self.poll.register(sys.stdin, select.POLLIN)
+        self.commands = framing.CommandReader()
+
+    def send(self, line):
+        self.out.write(line)
+
+    def hello(self):
+        self.send(framing.hello_line(config.FIRMWARE_ID, len(self.cells), self.rate_hz,
+                                     ADC_BITS, self.sn))
+
+    def handle(self, line):
+        try:
+            name, arg = framing.parse_command(line)
+        except ValueError as err:
+            self.send(framing.err_line(str(err)))
+            return
+        if name == "ID":
+            self.send(framing.ok_line("ID"))
+            self.hello()
+        elif name == "RATE":
+            hz = int(arg)
+            if all(cell.set_rate(hz) for cell in self.cells):
+                self.rate_hz = hz
+                self.send(framing.ok_line("RATE %d" % hz))
+                self.hello()
+            else:
+                self.send(framing.err_line("RATE %d not possible (10 or 80, RATE pin wired)" % hz))
+        elif name == "REBOOT":
+            self.send(framing.ok_line("REBOOT"))
+            time.sleep_ms(50)  # let the reply leave the USB buffer
+            machine.reset()
+
+    def read_host(self):
+        while self.poll.poll(0):
+            data = self.inp.read(1)
+            if not data:
+                return
+            for line in self.commands.feed(data):
+                self.handle(line)
+
+    def sample_ready(self):
+        for cell in self.cells:
+            if not cell.ready():
+                return False
+        return True
+
+    def run(self):
+        self.hello()
+        while True:
+            self.read_host()
+            if self.sample_ready():
+                counts = [cell.read() for cell in self.cells]
+                t_ms = self.clock.update(time.ticks_ms(), time.ticks_diff)
+                self.send(framing.sample_line(self.seq, t_ms, counts))
+                self.seq = (self.seq + 1) % framing.SEQ_MODULO
+            else:
+                time.sleep_ms(1)
+
+
+Beam().run()
