@@ -256,6 +256,12 @@ def _load_parts_file(path: Path) -> tuple[dict[str, float], list[tuple[str, str]
 
 
 _PART_OPTIONS = tuple(_TOML_KEYS)
+# Options that only make sense for a prediction (``length`` also places a correction).
+_PARTS_ONLY = (
+    *(k for k in _TOML_KEYS if k not in ("length", "head", "shaft", "grip")),
+    "extra",
+    "length_change",
+)
 
 
 def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
@@ -330,8 +336,17 @@ def _method(args: argparse.Namespace) -> str:
     chosen = [n for n, g in (("supports", supports), ("lever", lever), ("parts", parts)) if g]
     if len(chosen) > 1:
         raise CalcInputError(f"give one way of reading the club, not {' and '.join(chosen)}")
+    method = chosen[0] if chosen else "weight_balance"
+    if method != "parts":
+        for dest in _PARTS_ONLY:
+            if getattr(args, dest) is not None:
+                option = "--" + dest.replace("_", "-")
+                raise CalcInputError(
+                    f"{option} goes with a prediction from parts "
+                    "(--parts FILE or --head/--shaft/...)"
+                )
     if chosen:
-        return chosen[0]
+        return method
     if args.weight is None and args.balance_point is None:
         raise CalcInputError(
             "give a club: --weight and --balance-point; or --support-a/--reading-a/--support-b/"
@@ -345,8 +360,6 @@ def _bench(
     args: argparse.Namespace, method: str, u: InputUncertainty
 ) -> tuple[BenchInputs, ClubBuild | None, tuple[float, str, float] | None]:
     fulcrum = args.fulcrum_in
-    if method != "parts" and (args.length_change is not None):
-        raise CalcInputError("--length-change works on a prediction from parts")
     if method == "supports":
         _require(args, "two supports", "support_a", "reading_a", "support_b", "reading_b")
         for stray in _given(args, "weight", "balance_point"):
