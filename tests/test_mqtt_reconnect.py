@@ -1,0 +1,120 @@
+"""Broker outage mid-run: every measurement stored meanwhile arrives after the broker returns."""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import json
+from collections.abc import AsyncIterator
+from pathlib import Path
+
+import aiomqtt
+from paho.mqtt.packettypes import PacketTypes
+from paho.mqtt.properties import Properties
+
+from daemon.events import EventBus, MeasurementCaptured
+from daemon.measurement import Measurement
+from daemon.mqtt_link import MqttLink
+from daemon.storage import Store
+from tests.mqtt_broker import Broker
+from tests.mqtt_helpers import settings_for, wait_until
+from tests.sample_records import make_measurement
+
+
+@contextlib.asynccontextmanager
+async def historian(broker: Broker, topic: str) -> AsyncIterator[list[bytes]]:
+    """A plant consumer with a persistent session (MQTT 5 session expiry) that reconnects.
+
+    With a persistent session the broker queues QoS 1 messages for it while it is away, so what
+    it receives does not depend on who reconnects first after the outage.
+    """
+    received: list[bytes] = []
+
+    async def loop() -> None:
+        props = Properties(PacketTypes.CONNECT)
+        props.SessionExpiryInterval = 3600
+        while True:
+            try:
+                async with aiomqtt.Client(
+                    broker.host,
+                    broker.port,
+                    identifier="larkspur-historian",
+                    protocol=aiomqtt.ProtocolVersion.V5,
+                    clean_start=False,
+                    properties=props,
+                    keepalive=5,
+                ) as client:
+                    await client.subscribe(topic, qos=1)
+                    async for msg in client.messages:
+                        received.append(bytes(msg.payload))  # type: ignore[arg-type]
+            except aiomqtt.MqttError:
+                await asyncio.sleep(0.2)
+
+    task = asyncio.create_task(loop())
+    try:
+        yield received
+    finally:
+        task.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await task
+
+
+async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Path) -> None:
+    # Restart the fixture's broker with persistence so sessions survive its own restart.
+    data_dir = tmp_path / "mosquitto-data"
+    data_dir.mkdir()
+    data_dir.chmod(0o777)  # mosquitto drops to its own user when started as root
+    broker.stop()
+    broker.extra_conf = f"persistence true\npersistence_location {data_dir}/\n"
+    broker.start()
+
+    bus = EventBus()
+    with Store(tmp_path / "outage.db") as store:
+        link = MqttLink(
+            settings_for(broker), "bench-1", store, bus, retry_initial_s=0.2, retry_max_s=1.0
+        )
+        task = asyncio.create_task(link.run())
+        added: list[Measurement] = []
+
+        def capture(seq: int) -> None:
+            m = make_measurement(seq)
+            store.add_measurement(m)  # durable first ...
+            bus.publish(MeasurementCaptured(m))  # ... then announced
+            added.append(m)
+
+        try:
+            async with historian(broker, link.topics.measurement) as received:
+                await wait_until(lambda: link.connected, what="link connected")
+                for seq in range(1, 6):
+                    capture(seq)
+                await wait_until(lambda: len(received) >= 5, what="first five measurements")
+
+                broker.stop()
+                await wait_until(lambda: not link.connected, what="link noticing the outage")
+                for seq in range(6, 16):  # captures go on while the broker is away
+                    capture(seq)
+                    await asyncio.sleep(0.2)
+                # Not acknowledged, so still queued in the database.
+                assert store.outbox_count() == 10
+
+                broker.start()  # same port
+                for seq in range(16, 21):
+                    capture(seq)
+                want = {str(m.id) for m in added}
+                await wait_until(
+                    lambda: {json.loads(p)["id"] for p in received} >= want,
+                    timeout_s=30,
+                    what="all 20 measurements after the outage",
+                )
+                await wait_until(lambda: store.outbox_count() == 0, what="outbox drained")
+        finally:
+            task.cancel()
+            with contextlib.suppress(asyncio.CancelledError):
+                await task
+
+    by_id: dict[str, set[bytes]] = {}
+    for p in received:
+        by_id.setdefault(json.loads(p)["id"], set()).add(p)
+    assert set(by_id) == want  # none lost, nothing foreign
+    assert all(len(v) == 1 for v in by_id.values())  # duplicates only as identical copies
+    assert [Measurement.model_validate_json(next(iter(by_id[str(m.id)]))) for m in added] == added
