@@ -49,6 +49,7 @@ from drivers.usb_transport import (
     list_hid_scales,
     parse_usb_hid_url,
     report_layout,
+    set_default_backend,
 )
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures" / "usb"
@@ -504,3 +505,36 @@ def test_simulated_scale_rejects_bad_input() -> None:
         fake_scale_backend_from_weights([(0.0, 1.0, "wobbly")])
     with pytest.raises(ValueError, match="unit 'stone'"):
         fake_scale_backend_from_weights([(0.0, 1.0, "stable")], unit="stone")
+
+
+async def test_simulated_scale_loops_and_reaches_the_default_backend() -> None:
+    backend = fake_scale_backend_from_weights(
+        [(0.0, 100.0, "stable"), (0.1, 200.0, "stable")], pace="virtual", end="loop")
+    set_default_backend(backend)
+    try:
+        transport = open_transport("usb-hid://1209:0001", {})
+        await transport.open()
+        try:
+            values = [HidPosDriver("s").feed(await transport.read(), 0.0)[0] for _ in range(5)]
+        finally:
+            await transport.close()
+    finally:
+        set_default_backend(None)
+    assert [v.value for v in values if isinstance(v, Reading)] == pytest.approx(
+        [100.0, 200.0, 100.0, 200.0, 100.0])
+
+
+async def test_real_time_host_that_reads_late_gets_only_the_newest_report() -> None:
+    # Like an interrupt endpoint: the scale answers a poll with its current report.
+    samples: list[tuple[float, float, str | int]] = [
+        (0.0, 10.0, "motion"), (0.01, 20.0, "motion"), (0.02, 30.0, "stable")]
+    backend = fake_scale_backend_from_weights(samples, pace="realtime", end="silent")
+    transport = UsbHidTransport(0x1209, 0x0001, backend=backend, read_timeout_ms=100)
+    await transport.open()
+    try:
+        await asyncio.sleep(0.3)
+        [reading] = await _read_all(transport, HidPosDriver("s"), 1)
+    finally:
+        await transport.close()
+    assert reading.value == pytest.approx(30.0)
+    assert backend.device.reports_sent == 1
