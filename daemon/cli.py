@@ -16,6 +16,9 @@ from typing import cast
 # Order here is the order in ``heft --help``.
 COMMAND_MODULES: tuple[str, ...] = (
     "calc",
+    "config",
+    "run",
+    "replay",
 )
 
 

@@ -45,6 +45,13 @@ class SetClubId(_Cmd):
     club_id: str
 
 
+class SetBalancePoint(_Cmd):
+    """Balance point of the club on a single-scale station, e.g. 29.25 or "743mm"."""
+
+    command: Literal["set_balance_point"]
+    balance_point: float | str
+
+
 class CalibrateZero(_Cmd):
     command: Literal["calibrate_zero"]
     channel: str
@@ -79,6 +86,7 @@ Command = Annotated[
     | SelectJob
     | SelectSpec
     | SetClubId
+    | SetBalancePoint
     | CalibrateZero
     | CalibrateSpan
     | VerifyCheckMass

@@ -1,0 +1,51 @@
+"""``heft config check FILE`` and ``heft config example [--geometry TYPE]``."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+from daemon.config import GEOMETRY_TYPES, ConfigError, load_config
+from daemon.config_example import example_toml
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "config",
+        help="check a station config or print a commented example",
+        description="Validate a station config without starting anything, or print an example.",
+    )
+    sub = parser.add_subparsers(dest="config_command", metavar="ACTION", required=True)
+    check = sub.add_parser("check", help="validate FILE; exit 2 naming the first bad field")
+    check.add_argument("file", type=Path, metavar="FILE")
+    check.set_defaults(func=_check)
+    example = sub.add_parser("example", help="print a commented example config")
+    example.add_argument(
+        "--geometry",
+        choices=GEOMETRY_TYPES,
+        default="two_support",
+        help="which bench layout the example shows (default: two_support)",
+    )
+    example.set_defaults(func=_example)
+
+
+def _check(args: argparse.Namespace) -> int:
+    try:
+        config = load_config(args.file)
+    except ConfigError as err:
+        print(f"heft config: {err}", file=sys.stderr)
+        return 2
+    devices = ", ".join(f"{d.name} ({d.driver})" for d in config.devices)
+    print(
+        f"{args.file}: ok - station {config.station}, geometry {config.geometry.type}, "
+        f"devices {devices}, {len(config.specs)} spec(s), {len(config.jobs)} job(s), "
+        f"storage {config.storage.path}, mqtt {'on' if config.mqtt.enabled else 'off'}"
+    )
+    return 0
+
+
+def _example(args: argparse.Namespace) -> int:
+    sys.stdout.write(example_toml(args.geometry))
+    return 0

@@ -1,0 +1,69 @@
+"""``heft replay --config station.toml RECORDING.jsonl ...``: captures as JSON lines."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+from daemon.calibration import active_record
+from daemon.config import ConfigError, load_config
+from daemon.records import CalibrationRecord
+from daemon.replay import ReplayError, replay
+from daemon.storage import StorageError, Store
+from drivers.base import DriverError
+from drivers.recording import RecordingError
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "replay",
+        help="run recordings through the capture pipeline; one JSON line per measurement",
+        description=(
+            "Feed recorded device bytes (hardware_fixtures format) through the same pipeline "
+            "as 'heft run', in virtual time: no ports, no broker. Prints one JSON line per "
+            "captured club with the MQTT payload's fields plus 't', the capture time on the "
+            "recording's clock. The same input always gives the same output."
+        ),
+    )
+    parser.add_argument("--config", required=True, type=Path, help="station config (TOML)")
+    parser.add_argument("recordings", nargs="+", type=Path, metavar="RECORDING.jsonl")
+    parser.add_argument(
+        "--calibrations",
+        type=Path,
+        metavar="DB",
+        help="take load-cell calibrations from this database (default: the config's, if it exists)",
+    )
+    parser.set_defaults(func=_run)
+
+
+def _calibrations(db: Path | None) -> dict[str, CalibrationRecord]:
+    if db is None or not db.exists():
+        return {}
+    with Store(db) as store:
+        records = store.calibrations()
+    channels = {r.channel for r in records}
+    found = {ch: active_record([r for r in records if r.channel == ch]) for ch in channels}
+    return {ch: r for ch, r in found.items() if r is not None}
+
+
+def _run(args: argparse.Namespace) -> int:
+    try:
+        config = load_config(args.config)
+    except ConfigError as err:
+        print(f"heft replay: {err}", file=sys.stderr)
+        return 2
+    try:
+        calibrations = _calibrations(args.calibrations or config.storage.path)
+    except StorageError as err:
+        print(f"heft replay: --calibrations: {err}", file=sys.stderr)
+        return 2
+    try:
+        for m in replay(config, args.recordings, calibrations=calibrations):
+            sys.stdout.write(m.model_dump_json() + "\n")
+            sys.stdout.flush()
+    except (RecordingError, ReplayError, DriverError, OSError) as err:
+        print(f"heft replay: {err}", file=sys.stderr)
+        return 2
+    return 0

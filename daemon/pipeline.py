@@ -1,0 +1,516 @@
+"""The bench pipeline: driver outputs in, events and measurements out (pure: no loop, no I/O).
+
+One object does, for live runs and for ``heft replay`` alike::
+
+    Reading (counts or g) -> calibration (counts -> g) -> tare -> CaptureEngine
+        -> Captured windows -> geometry -> ClubNumbers (with uncertainties) -> spec verdict
+        -> Measurement -> MeasurementCaptured event
+
+Every method returns the events it produced (live readings, capture-state changes, alarm
+changes, captured measurements) in order; the caller decides what to do with them (the service
+stores measurements before publishing anything, replay prints them). Time comes in two forms,
+both passed in: each reading's monotonic ``t_mono_s`` (the recording's clock in replay) and
+``clock_utc`` for wall-clock stamps.
+
+Geometries and how captures pair:
+
+* ``two_support``: one capture engine over both supports; its capture is the club.
+* ``lever_beam``: one engine for the beam's force channel and one for the gram scale; the club
+  is the pair of the latest beam capture and the latest weighing within ``pairing_window_s``,
+  whichever came first.
+* ``single_scale``: one engine for the scale, paired with a balance point entered before or
+  after the weighing (command or scanner tag).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import uuid
+from collections import deque
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime
+
+from daemon.alarms import AlarmManager
+from daemon.calibration import config_record, counts_to_g, usable
+from daemon.capture import Captured, CaptureEngine, StateChanged, WindowStats
+from daemon.capture import Warning as CaptureWarning
+from daemon.config import (
+    LeverBeamGeometry,
+    SingleScaleGeometry,
+    SpecConfig,
+    StationConfig,
+    TwoSupportGeometry,
+)
+from daemon.events import (
+    AlarmChanged,
+    AlarmKind,
+    CaptureState,
+    CaptureStateChanged,
+    Event,
+    LiveReading,
+    MeasurementCaptured,
+)
+from daemon.measurement import ChannelWindow, Measurement, Verdict
+from daemon.physics.club import (
+    ClubNumbers,
+    club_from_lever,
+    club_from_two_supports,
+    club_from_weight_and_balance,
+)
+from daemon.physics.statics import StaticsError
+from daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
+from daemon.records import CalibrationRecord
+from daemon.specs import judge
+from daemon.units import UnitError, parse_quantity
+from daemon.version import __version__
+from drivers.reading import ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
+
+log = logging.getLogger("heft.pipeline")
+
+# Raw values kept per channel for tare and calibration windows (80 samples/s for ~25 s).
+RECENT_SAMPLES = 2048
+# Namespace of the deterministic measurement ids that replay gives (uuid5 of recording + seq).
+REPLAY_NAMESPACE = uuid.UUID("6f1d3c52-4a8e-5b7e-9a51-2c3e7d1b0a94")
+
+
+class SelectionError(ValueError):
+    """A job, spec, club or balance point that cannot be selected; the message says why."""
+
+
+@dataclass(frozen=True, slots=True)
+class _GroupCapture:
+    """A capture of one engine, waiting to be paired (lever beam, single scale)."""
+
+    t_s: float
+    windows: Mapping[str, WindowStats]
+
+
+@dataclass
+class _Group:
+    name: str
+    channels: tuple[str, ...]
+    engine: CaptureEngine
+
+
+@dataclass
+class _ChannelState:
+    recent: deque[tuple[float, float]] = field(default_factory=lambda: deque(maxlen=RECENT_SAMPLES))
+    tare_g: float = 0.0
+
+
+class BenchPipeline:
+    """Pure processing of one station's device outputs.
+
+    Args:
+        config: The validated station config.
+        clock_utc: Wall clock for measurement and alarm stamps (replay passes a virtual one).
+        calibrations: Active calibration record per load-cell channel (from the database).
+        first_seq: The station's next unused sequence number.
+        replay_source: When set (replay), measurement ids are uuid5 of this text and the seq,
+            so the same recording always gives the same ids.
+        software_version: Stamped on every measurement.
+    """
+
+    def __init__(
+        self,
+        config: StationConfig,
+        clock_utc: Callable[[], datetime],
+        *,
+        calibrations: Mapping[str, CalibrationRecord] | None = None,
+        first_seq: int = 1,
+        replay_source: str | None = None,
+        software_version: str = __version__,
+    ) -> None:
+        self.config = config
+        self.station = config.station
+        self._clock_utc = clock_utc
+        self._out: list[Event] = []
+        self.alarms = AlarmManager(config.station, clock_utc, self._on_alarm)
+        self.next_seq = first_seq
+        self._replay_source = replay_source
+        self._software_version = software_version
+        self.job: str | None = config.job
+        self.spec_name: str | None = config.active_spec_name()
+        self.club: str | None = config.club
+        self.club_id: str | None = None
+        self.balance_point_in: float | None = None
+        self._balance_point_t: float | None = None
+        self.device_info: dict[str, DeviceInfo] = {}
+        self.calibrations: dict[str, CalibrationRecord] = {}
+        for channel, cfg in config.channels.items():
+            if cfg.source == "config":
+                self.calibrations[channel] = config_record(
+                    config.station, channel, cfg, clock_utc()
+                )
+        for channel, record in (calibrations or {}).items():
+            if config.channel(channel).source == "database":
+                self.calibrations[channel] = record
+        self._channels: dict[str, _ChannelState] = {}
+        self._groups = self._make_groups()
+        self._group_of: dict[str, _Group] = {
+            ch: g for g in self._groups for ch in g.channels
+        }
+        for ch in self._group_of:
+            self._channels[ch] = _ChannelState()
+        self._pending: dict[str, _GroupCapture] = {}
+        self._last_t = 0.0
+
+    # ----------------------------------------------------------------------- construction
+
+    def _make_groups(self) -> list[_Group]:
+        geometry = self.config.geometry
+        params = self.config.capture
+        if isinstance(geometry, TwoSupportGeometry):
+            specs = [("club", geometry.channels)]
+        elif isinstance(geometry, LeverBeamGeometry):
+            specs = [("beam", (geometry.force_channel,)), ("weight", (geometry.weight_channel,))]
+        else:
+            specs = [("weight", (geometry.weight_channel,))]
+        return [_Group(name, chans, CaptureEngine(list(chans), params)) for name, chans in specs]
+
+    @property
+    def channels(self) -> tuple[str, ...]:
+        """Every channel the geometry reads."""
+        return tuple(self._group_of)
+
+    # ----------------------------------------------------------------------- input
+
+    def feed(self, output: DriverOutput) -> list[Event]:
+        """Process one driver output; returns the events it caused, in order."""
+        if isinstance(output, Reading):
+            self._on_reading(output)
+        elif isinstance(output, ClubTag):
+            self._on_tag(output)
+        elif isinstance(output, DeviceInfo):
+            self.device_info[output.device] = output
+        return self._take()
+
+    def feed_all(self, outputs: Iterable[DriverOutput]) -> list[Event]:
+        events: list[Event] = []
+        for o in outputs:
+            events.extend(self.feed(o))
+        return events
+
+    def tick(self, t_mono_s: float) -> list[Event]:
+        """Advance time with no new reading (timeouts: will not settle, a silent channel)."""
+        self._last_t = max(self._last_t, t_mono_s)
+        for group in self._groups:
+            self._handle(group, group.engine.tick(t_mono_s))
+        return self._take()
+
+    def device_lost(self, device: str) -> list[Event]:
+        """A device's port is gone: a capture settling on its channels starts over.
+
+        The engine also restarts a channel's windows after any gap longer than
+        ``max_gap_s`` (the service waits at least that long before reopening a port), so no
+        window joins samples from before and after a disconnect. A club already captured stays
+        captured (it is not measured twice when the device comes back).
+        """
+        for group in self._groups:
+            if any(ch.split("/")[0] == device for ch in group.channels) and (
+                group.engine.state in (CaptureState.SETTLING, CaptureState.UNSETTLED)
+            ):
+                self._handle(group, group.engine.rearm())
+        for ch, state in self._channels.items():
+            if ch.split("/")[0] == device:
+                state.recent.clear()
+        return self._take()
+
+    def _on_reading(self, r: Reading) -> None:
+        channel = f"{r.device}/{r.channel}"
+        state = self._channels.get(channel)
+        if state is None:
+            return  # a channel the geometry does not use
+        self._last_t = max(self._last_t, r.t_mono_s)
+        flags = r.flags
+        if r.kind is ValueKind.COUNTS:
+            record = self.calibrations.get(channel)
+            if not usable(record):
+                return  # no span yet: counts cannot become grams (alarm raised by the service)
+            assert record is not None
+            raw = r.value
+            value_g = counts_to_g(record, r.value) if math.isfinite(r.value) else math.nan
+        else:
+            raw = value_g = r.value
+        if r.usable and math.isfinite(raw):
+            state.recent.append((r.t_mono_s, raw))
+        net_g = value_g - state.tare_g if math.isfinite(value_g) else value_g
+        if math.isfinite(net_g):
+            self._out.append(LiveReading(self.station, channel, r.t_mono_s, net_g, flags))
+        group = self._group_of[channel]
+        self._handle(group, group.engine.on_sample(channel, r.t_mono_s, net_g, flags))
+
+    def _on_tag(self, tag: ClubTag) -> None:
+        geometry = self.config.geometry
+        text = tag.club_id.strip()
+        if isinstance(geometry, SingleScaleGeometry) and text.startswith(
+            geometry.balance_point_prefix
+        ):
+            try:
+                self.set_balance_point(text[len(geometry.balance_point_prefix) :], tag.t_mono_s)
+            except SelectionError as err:
+                log.warning("scanner %s: %s", tag.device, err)
+            return
+        self.club_id = text
+
+    # ----------------------------------------------------------------------- engine events
+
+    def _handle(self, group: _Group, events: Iterable[object]) -> None:
+        for ev in events:
+            if isinstance(ev, StateChanged):
+                detail = ev.detail if len(self._groups) == 1 else f"{group.name}: {ev.detail}"
+                self._out.append(CaptureStateChanged(self.station, ev.state, ev.t_s, detail))
+            elif isinstance(ev, CaptureWarning):
+                kind = _WARNING_ALARMS.get(ev.kind)
+                if kind is not None:
+                    source = ev.channel or group.name
+                    self.alarms.set(kind, source, ev.active, ev.message)
+            elif isinstance(ev, Captured):
+                self._on_captured(group, ev)
+
+    def _on_captured(self, group: _Group, ev: Captured) -> None:
+        geometry = self.config.geometry
+        capture = _GroupCapture(ev.t_s, dict(ev.windows))
+        if isinstance(geometry, TwoSupportGeometry):
+            self._measure([capture], ev.t_s)
+            return
+        self._pending[group.name] = capture
+        # Drop partners too old to pair with this capture.
+        for name, other in list(self._pending.items()):
+            if ev.t_s - other.t_s > geometry.pairing_window_s:
+                del self._pending[name]
+        if isinstance(geometry, LeverBeamGeometry):
+            if "beam" in self._pending and "weight" in self._pending:
+                pair = [self._pending.pop("beam"), self._pending.pop("weight")]
+                self._measure(pair, ev.t_s)
+        elif self.balance_point_in is not None:
+            self._measure([self._pending.pop("weight")], ev.t_s)
+
+    # ----------------------------------------------------------------------- measurement
+
+    def _reading_u(self, channel: str, w: WindowStats) -> UncertainValue:
+        """Window mean with its standard uncertainty: repeatability and the net resolution."""
+        step = self.config.capture.division_for(channel)
+        repeat = w.stdev_g / math.sqrt(w.n) if w.n > 1 else 0.0
+        return UncertainValue(w.mean_g, combine_u(repeat, net_resolution_u(step)))
+
+    def _numbers(self, windows: Mapping[str, WindowStats]) -> ClubNumbers:
+        geometry = self.config.geometry
+        if isinstance(geometry, TwoSupportGeometry):
+            return club_from_two_supports(
+                self._reading_u(geometry.channel_a, windows[geometry.channel_a]),
+                UncertainValue(geometry.position_a_in, geometry.position_u_in),
+                self._reading_u(geometry.channel_b, windows[geometry.channel_b]),
+                UncertainValue(geometry.position_b_in, geometry.position_u_in),
+            )
+        if isinstance(geometry, LeverBeamGeometry):
+            return club_from_lever(
+                self._reading_u(geometry.force_channel, windows[geometry.force_channel]),
+                UncertainValue(geometry.lever_arm_in, geometry.lever_arm_u_in),
+                self._reading_u(geometry.weight_channel, windows[geometry.weight_channel]),
+                fulcrum_in=geometry.fulcrum_in,
+            )
+        assert self.balance_point_in is not None
+        return club_from_weight_and_balance(
+            self._reading_u(geometry.weight_channel, windows[geometry.weight_channel]),
+            UncertainValue(self.balance_point_in, geometry.balance_point_u_in),
+        )
+
+    def _measure(self, captures: list[_GroupCapture], t_s: float) -> None:
+        windows = {ch: w for c in captures for ch, w in c.windows.items()}
+        try:
+            numbers = self._numbers(windows)
+        except StaticsError as err:
+            self._out.append(
+                CaptureStateChanged(self.station, CaptureState.HOLDING, t_s, f"not a club: {err}")
+            )
+            return
+        spec = self.spec
+        verdict = judge(
+            spec,
+            self.club,
+            total_weight_g=numbers.total_weight_g,
+            balance_point_in=numbers.balance_point_in,
+            swingweight_points=numbers.swingweight_points,
+        )
+        seq = self.next_seq
+        self.next_seq += 1
+        channel_windows = [
+            ChannelWindow(
+                channel=ch,
+                mean_g=w.mean_g,
+                stdev_g=w.stdev_g,
+                n=w.n,
+                t_start_s=w.t_start_s,
+                t_end_s=w.t_end_s,
+                calibration_id=self._calibration_id(ch),
+            )
+            for ch, w in sorted(windows.items())
+        ]
+        m = Measurement(
+            id=self._measurement_id(seq),
+            station=self.station,
+            seq=seq,
+            time_utc=self._clock_utc(),
+            t=t_s,
+            club_id=self.club_id,
+            job=self.job,
+            spec=self.spec_name,
+            club=self.club,
+            **numbers.as_dict(),
+            channels=channel_windows,
+            calibration_ids=sorted({w.calibration_id for w in channel_windows if w.calibration_id}),
+            verdict=verdict.verdict,
+            checks=verdict.checks,
+            software_version=self._software_version,
+        )
+        self.club_id = None
+        self.balance_point_in = None
+        self._out.append(MeasurementCaptured(m))
+        if verdict.verdict is Verdict.FAIL:
+            failed = "; ".join(c.message for c in verdict.failed)
+            self.alarms.raise_alarm(
+                AlarmKind.OUT_OF_SPEC, "station", f"club {m.club_id or f'#{seq}'}: {failed}"
+            )
+        elif verdict.verdict is not Verdict.NO_SPEC:
+            self.alarms.clear(AlarmKind.OUT_OF_SPEC, "station", f"club #{seq} in spec")
+
+    def _calibration_id(self, channel: str) -> str | None:
+        record = self.calibrations.get(channel)
+        return record.id if record is not None else None
+
+    def _measurement_id(self, seq: int) -> uuid.UUID:
+        if self._replay_source is not None:
+            return uuid.uuid5(REPLAY_NAMESPACE, f"{self._replay_source}#{seq}")
+        return uuid.uuid4()
+
+    # ----------------------------------------------------------------------- selections
+
+    @property
+    def spec(self) -> SpecConfig | None:
+        return self.config.specs.get(self.spec_name) if self.spec_name is not None else None
+
+    def select_job(self, job: str) -> None:
+        if job not in self.config.jobs:
+            raise SelectionError(f"no job {job!r}; jobs: {', '.join(sorted(self.config.jobs))}")
+        self.job = job
+        self.spec_name = self.config.jobs[job].spec
+        self.club = None
+
+    def select_spec(self, spec: str, club: str | None = None) -> None:
+        found = self.config.specs.get(spec)
+        if found is None:
+            raise SelectionError(
+                f"no spec {spec!r}; specs: {', '.join(sorted(self.config.specs)) or 'none'}"
+            )
+        if club is not None and found.clubs and club not in found.clubs:
+            raise SelectionError(
+                f"spec {spec!r} has no club {club!r}; clubs: {', '.join(sorted(found.clubs))}"
+            )
+        self.spec_name = spec
+        self.club = club
+
+    def set_club_id(self, club_id: str) -> None:
+        if not club_id.strip():
+            raise SelectionError("club_id must not be empty")
+        self.club_id = club_id.strip()
+
+    def set_balance_point(self, value: str | float, t_mono_s: float | None = None) -> list[Event]:
+        """Balance point of the club being weighed (single-scale geometry); may complete it."""
+        geometry = self.config.geometry
+        if not isinstance(geometry, SingleScaleGeometry):
+            raise SelectionError(
+                f"a balance point is entered only on a single_scale station (this one is "
+                f"{geometry.type})"
+            )
+        try:
+            bp = parse_quantity(value, kind="length") if isinstance(value, str) else float(value)
+        except UnitError as err:
+            raise SelectionError(str(err)) from None
+        if not 0 < bp < 60:
+            raise SelectionError(f"balance point {bp:g} in is not between 0 and 60 in")
+        self.balance_point_in = bp
+        t = self._last_t if t_mono_s is None else t_mono_s
+        weighing = self._pending.get("weight")
+        if weighing is not None and t - weighing.t_s <= geometry.pairing_window_s:
+            self._measure([self._pending.pop("weight")], t)
+        return self._take()
+
+    def tare(self, device: str | None, window_s: float = 0.5) -> list[str]:
+        """Take the mean of the last ``window_s`` of each channel (of ``device``) as its tare.
+
+        Returns the channels tared; raises SelectionError when one has no recent readings.
+        """
+        chans = [c for c in self._channels if device is None or c.split("/")[0] == device]
+        if not chans:
+            raise SelectionError(f"no channel of device {device!r} is used by the geometry")
+        tares: dict[str, float] = {}
+        for ch in chans:
+            gross = self.recent_grams(ch, window_s)
+            if not gross:
+                raise SelectionError(f"{ch} has no recent readings to tare on")
+            tares[ch] = sum(gross) / len(gross)
+        for ch, value in tares.items():
+            self._channels[ch].tare_g = value
+            self._handle(self._group_of[ch], self._group_of[ch].engine.reset_zero(ch))
+        return sorted(tares)
+
+    def rearm(self) -> list[Event]:
+        for group in self._groups:
+            self._handle(group, group.engine.rearm())
+        self._pending.clear()
+        return self._take()
+
+    def set_calibration(self, record: CalibrationRecord) -> None:
+        """Make ``record`` the channel's active calibration (after zero or span)."""
+        self.calibrations[record.channel] = record
+
+    # ----------------------------------------------------------------------- raw windows
+
+    def recent_raw(self, channel: str, since_t: float) -> list[float]:
+        """Raw values (counts, or grams for scales) of ``channel`` received since ``since_t``."""
+        state = self._channels.get(channel)
+        if state is None:
+            return []
+        return [v for t, v in state.recent if t >= since_t]
+
+    def recent_grams(self, channel: str, window_s: float) -> list[float]:
+        """Gross grams of the channel's last ``window_s`` seconds (calibrated, before tare)."""
+        state = self._channels.get(channel)
+        if state is None or not state.recent:
+            return []
+        end = state.recent[-1][0]
+        raw = [v for t, v in state.recent if t >= end - window_s]
+        record = self.calibrations.get(channel)
+        if record is not None and usable(record):
+            return [counts_to_g(record, v) for v in raw]
+        return raw
+
+    @property
+    def last_t(self) -> float:
+        return self._last_t
+
+    def drain(self) -> list[Event]:
+        """Events made by direct calls (alarms raised by the service, selections)."""
+        return self._take()
+
+    # ----------------------------------------------------------------------- plumbing
+
+    def _on_alarm(self, alarm: object) -> None:
+        from daemon.events import Alarm
+
+        assert isinstance(alarm, Alarm)
+        self._out.append(AlarmChanged(alarm))
+
+    def _take(self) -> list[Event]:
+        out, self._out = self._out, []
+        return out
+
+
+_WARNING_ALARMS: dict[str, AlarmKind] = {
+    "will_not_settle": AlarmKind.WILL_NOT_SETTLE,
+    "overload": AlarmKind.OVERLOAD,
+    "zero_out_of_range": AlarmKind.ZERO_OUT_OF_RANGE,
+}

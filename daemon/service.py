@@ -1,0 +1,606 @@
+"""The bench service: supervised devices, the pipeline, durable storage, MQTT, commands.
+
+Tasks inside :meth:`Service.run` (one ``asyncio.TaskGroup``; cancelling ``run`` stops them all
+and closes every port):
+
+* one supervisor per device: open with backoff (tenacity), read until the port is lost or
+  silent for ``silence_timeout_s`` (2 s by default), then raise the device-offline alarm and try
+  again; a reopened port starts with its input flushed, and the pipeline abandons any capture
+  in progress on that device so no capture spans a disconnect;
+* the storage writer: every measurement is committed (WAL, ``synchronous=FULL``) before it is
+  published on the bus, and so before MQTT sees it. A failed commit raises the storage-failed
+  alarm and the measurement stays queued, retried with backoff until it is stored;
+* the ticker: capture timeouts, device status, calibration due dates, the systemd watchdog;
+* the MQTT link (``daemon.mqtt_link``) when ``[mqtt] enabled``.
+
+Every event the pipeline makes goes to the :class:`~daemon.events.EventBus` (the dashboard, the
+MQTT link and tests subscribe); alarm changes also go to the alarm log in SQLite.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import logging
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+from tenacity import AsyncRetrying, retry_if_exception_type, wait_exponential
+
+from daemon import command_api as api
+from daemon.alarms import UnknownAlarmError
+from daemon.calibration import (
+    CalibrationError,
+    CountsWindow,
+    active_record,
+    default_verify_tolerance_g,
+    due_status,
+    span_record,
+    usable,
+    verify_record,
+    zero_record,
+)
+from daemon.config import DeviceConfig, StationConfig
+from daemon.events import (
+    Alarm,
+    AlarmChanged,
+    AlarmKind,
+    DeviceStatus,
+    Event,
+    EventBus,
+    MeasurementCaptured,
+)
+from daemon.measurement import Measurement
+from daemon.pipeline import BenchPipeline, SelectionError
+from daemon.records import CalibrationRecord, ReferenceMass
+from daemon.sd_notify import notify, watchdog_interval_s
+from daemon.storage import StorageError, Store
+from drivers.base import DriverError, TransportError, UnsupportedCommand
+from drivers.reading import Reading
+from drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
+from drivers.registry import create_driver
+from drivers.session import DeviceSession
+from drivers.transport import Transport, open_transport
+
+log = logging.getLogger("heft.service")
+
+TICK_S = 0.2
+DEVICE_STATUS_EVERY_S = 1.0
+CALIBRATION_CHECK_EVERY_S = 60.0
+CALIBRATION_WINDOW_S = 1.5
+RECONNECT_MAX_WAIT_S = 5.0
+STORE_RETRY_MAX_WAIT_S = 10.0
+
+
+@dataclass
+class DeviceRuntime:
+    """What the service knows about one device while it runs."""
+
+    config: DeviceConfig
+    session: DeviceSession | None = None
+    connected: bool = False
+    readings: int = 0  # of channel 0: the sample rate is per channel
+    rate_t0: float = 0.0
+    rate_n0: int = 0
+    sample_rate_hz: float | None = None
+    last_value: float | None = None
+    last_t_mono_s: float | None = None
+
+
+class Service:
+    """One station.
+
+    Construction is cheap (no I/O): the store opens and the devices start in :meth:`run`.
+
+    Args:
+        config: Validated station config (``daemon.config.load_config``).
+        bus: Where events go; a new one when None (read it back as ``service.bus``).
+        store: An open Store to use (and not close); None opens ``config.storage.path``.
+        clock: Monotonic clock (seconds) for timeouts and tick times.
+        clock_utc: Wall clock for measurement and alarm stamps.
+        record_dir: When set, every device's received bytes are recorded there as
+            ``<device>.jsonl`` (the hardware_fixtures format; ``heft replay`` reads it).
+    """
+
+    def __init__(
+        self,
+        config: StationConfig,
+        bus: EventBus | None = None,
+        store: Store | None = None,
+        *,
+        clock: Callable[[], float] = time.monotonic,
+        clock_utc: Callable[[], datetime] = lambda: datetime.now(UTC),
+        record_dir: Path | None = None,
+    ) -> None:
+        self.config = config
+        self.record_dir = record_dir
+        self._recorders: dict[str, RecordingTransport] = {}
+        self.bus = bus if bus is not None else EventBus()
+        self._given_store = store
+        self.store: Store | None = store
+        self._clock = clock
+        self._clock_utc = clock_utc
+        self.pipeline: BenchPipeline | None = None
+        self.devices = {d.name: DeviceRuntime(d) for d in config.devices}
+        self._to_store: asyncio.Queue[Measurement] | None = None
+        self._pending_zero: dict[str, CalibrationRecord] = {}
+        self._calibrating: set[str] = set()
+        self.stored_count = 0
+        self.ready = asyncio.Event()
+
+    # ------------------------------------------------------------------------------ running
+
+    async def run(self) -> None:
+        """Run until cancelled. Raises StorageError when the database cannot be opened."""
+        store = self.store if self.store is not None else Store(self.config.storage.path)
+        self.store = store
+        try:
+            await self._run(store)
+        finally:
+            self.ready.clear()
+            for recorder in self._recorders.values():
+                recorder.writer.close()
+            self._recorders.clear()
+            if self._given_store is None:
+                store.close()
+                self.store = None
+
+    async def _run(self, store: Store) -> None:
+        calibrations: dict[str, CalibrationRecord] = {}
+        for channel in self.config.channels:
+            record = active_record(store.calibrations(channel))
+            if record is not None:
+                calibrations[channel] = record
+        self.pipeline = BenchPipeline(
+            self.config,
+            self._clock_utc,
+            calibrations=calibrations,
+            first_seq=store.next_seq(self.config.station),
+        )
+        self._to_store = asyncio.Queue()
+        # Alarms left active by the last run are re-evaluated now: close them in the log.
+        for stale in store.active_alarms(self.config.station):
+            with contextlib.suppress(StorageError):
+                store.record_alarm(
+                    Alarm(stale.station, stale.kind, stale.source, False,
+                          "service restarted; re-evaluated", self._clock_utc())
+                )
+        self._check_calibrations()
+        async with asyncio.TaskGroup() as tasks:
+            for runtime in self.devices.values():
+                tasks.create_task(self._supervise(runtime), name=f"device-{runtime.config.name}")
+            tasks.create_task(self._store_writer(), name="store-writer")
+            tasks.create_task(self._ticker(), name="ticker")
+            if self.config.mqtt.enabled:
+                tasks.create_task(self._mqtt(), name="mqtt")
+            self.ready.set()
+            notify("READY=1")
+            log.info("station %s running: %d device(s)", self.config.station, len(self.devices))
+
+    async def _mqtt(self) -> None:
+        from daemon.mqtt_link import MqttLink
+
+        assert self.store is not None
+        link = MqttLink(
+            self.config.mqtt, self.config.station, self.store, self.bus, self.handle_command
+        )
+        await link.run()
+
+    # ------------------------------------------------------------------------------ events
+
+    def _dispatch(self, events: list[Event]) -> None:
+        """Send pipeline events on; measurements go to the store first (published after)."""
+        for ev in events:
+            if isinstance(ev, MeasurementCaptured):
+                assert self._to_store is not None
+                self._to_store.put_nowait(ev.measurement)
+                continue
+            if isinstance(ev, AlarmChanged):
+                self._log_alarm(ev.alarm)
+            self.bus.publish(ev)
+
+    def _log_alarm(self, alarm: Alarm) -> None:
+        if self.store is None:
+            return
+        try:
+            self.store.record_alarm(alarm)
+        except StorageError as err:  # the alarm still goes out on the bus
+            log.error("alarm %s not written to the history: %s", alarm.key, err)
+
+    async def _store_writer(self) -> None:
+        """Commit each measurement, in order, before publishing it; never drop one."""
+        assert self._to_store is not None and self.store is not None
+        store = self.store
+        while True:
+            m = await self._to_store.get()
+            async for attempt in AsyncRetrying(
+                retry=retry_if_exception_type(StorageError),
+                wait=wait_exponential(multiplier=0.2, max=STORE_RETRY_MAX_WAIT_S),
+                before_sleep=lambda state: self._storage_failed(state.outcome),
+                reraise=True,
+            ):
+                with attempt:
+                    await asyncio.to_thread(store.add_measurement, m)
+            self.stored_count += 1
+            self._alarm_set(AlarmKind.STORAGE_FAILED, "storage", False, "storage recovered")
+            self.bus.publish(MeasurementCaptured(m))
+
+    def _storage_failed(self, outcome: Any) -> None:
+        err = outcome.exception() if outcome is not None else None
+        pending = self._to_store.qsize() + 1 if self._to_store is not None else 1
+        log.error("storing a measurement failed (%d waiting, will retry): %s", pending, err)
+        self._alarm_set(
+            AlarmKind.STORAGE_FAILED,
+            "storage",
+            True,
+            f"measurements cannot be stored ({pending} waiting, kept and retried): {err}",
+        )
+
+    def _alarm_set(self, kind: AlarmKind, source: str, active: bool, message: str) -> None:
+        if self.pipeline is None:
+            return
+        alarms = self.pipeline.alarms
+        if not active:
+            alarms.clear(kind, source, message)
+        elif not alarms.is_active(kind, source):  # keep the first wording while it lasts
+            alarms.raise_alarm(kind, source, message)
+        self._dispatch(self.pipeline.drain())
+
+    # ------------------------------------------------------------------------------ devices
+
+    async def _supervise(self, runtime: DeviceRuntime) -> None:
+        """Keep one device connected for ever: open with backoff, read, notice loss, repeat."""
+        cfg = runtime.config
+        driver = create_driver(cfg.driver, cfg.name, cfg.options)
+        while True:
+            async for attempt in AsyncRetrying(
+                retry=retry_if_exception_type(DriverError),
+                # At least max_gap_s between a loss and the reopen: the capture engine then
+                # restarts every window, so none joins samples across the disconnect.
+                wait=wait_exponential(
+                    multiplier=0.1, min=self._reopen_min_wait_s, max=RECONNECT_MAX_WAIT_S
+                ),
+                before_sleep=lambda state: self._device_down(runtime, state.outcome),
+            ):
+                with attempt:
+                    transport = self._transport(cfg)
+                    session = DeviceSession(
+                        cfg.name,
+                        driver,
+                        transport,
+                        clock=self._clock,
+                        silence_timeout_s=cfg.silence_limit_s,
+                    )
+                    await self._read_session(runtime, session)
+
+    def _transport(self, cfg: DeviceConfig) -> Transport:
+        """The device's transport; with ``record_dir`` wrapped in one recorder per device.
+
+        The recorder outlives reconnects (its inner transport is replaced), so the file keeps
+        one timeline across them.
+        """
+        inner = open_transport(cfg.address, cfg.transport_options)
+        if self.record_dir is None:
+            return inner
+        recorder = self._recorders.get(cfg.name)
+        if recorder is None:
+            self.record_dir.mkdir(parents=True, exist_ok=True)
+            writer = RecordingWriter(
+                self.record_dir / f"{cfg.name}.jsonl",
+                RecordingHeader(
+                    device=cfg.name,
+                    driver=cfg.driver,
+                    options=cfg.options,
+                    created_utc=self._clock_utc(),
+                    description=f"heft run of station {self.config.station}",
+                ),
+            )
+            recorder = RecordingTransport(inner, writer, clock=self._clock)
+            self._recorders[cfg.name] = recorder
+        else:
+            recorder.inner = inner
+        return recorder
+
+    @property
+    def _reopen_min_wait_s(self) -> float:
+        return max(0.2, 1.2 * self.config.capture.max_gap_s)
+
+    async def _read_session(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
+        """Read one session until it fails; raises TransportError when the port goes."""
+        assert self.pipeline is not None
+        runtime.session = session
+        try:
+            async for output in session.outputs():
+                if not runtime.connected:
+                    self._device_up(runtime, session)
+                if isinstance(output, Reading) and output.channel == 0:
+                    runtime.readings += 1
+                    runtime.last_value = output.value
+                    runtime.last_t_mono_s = output.t_mono_s
+                self._dispatch(self.pipeline.feed(output))
+        finally:
+            runtime.session = None
+        raise TransportError(f"device {runtime.config.name!r}: the port closed")
+
+    def _device_up(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
+        runtime.connected = True
+        runtime.rate_t0, runtime.rate_n0 = self._clock(), runtime.readings
+        name = runtime.config.name
+        log.info("device %s connected (%s)", name, session.transport.description)
+        self._alarm_set(AlarmKind.DEVICE_OFFLINE, name, False, f"device {name} is back")
+        self._publish_device(runtime)
+
+    def _device_down(self, runtime: DeviceRuntime, outcome: Any) -> None:
+        err = outcome.exception() if outcome is not None else None
+        name = runtime.config.name
+        was_connected = runtime.connected
+        runtime.connected = False
+        runtime.sample_rate_hz = None
+        if was_connected:
+            log.warning("device %s lost: %s", name, err)
+        assert self.pipeline is not None
+        self._dispatch(self.pipeline.device_lost(name))
+        self._alarm_set(
+            AlarmKind.DEVICE_OFFLINE,
+            name,
+            True,
+            f"device {name} ({runtime.config.address}) is offline: {err}",
+        )
+        if was_connected:
+            self._publish_device(runtime)
+
+    def _publish_device(self, runtime: DeviceRuntime) -> None:
+        session = runtime.session
+        info = self.pipeline.device_info.get(runtime.config.name) if self.pipeline else None
+        stats = session.driver.stats if session is not None else None
+        self.bus.publish(
+            DeviceStatus(
+                station=self.config.station,
+                device=runtime.config.name,
+                connected=runtime.connected,
+                port=runtime.config.address,
+                sample_rate_hz=runtime.sample_rate_hz,
+                frame_errors=stats.frame_errors if stats is not None else 0,
+                last_value=runtime.last_value,
+                last_t_mono_s=runtime.last_t_mono_s,
+                model=info.model if info is not None else "",
+                firmware=info.firmware if info is not None else "",
+            )
+        )
+
+    # ------------------------------------------------------------------------------ ticker
+
+    async def _ticker(self) -> None:
+        assert self.pipeline is not None
+        watchdog = watchdog_interval_s()
+        last_status = last_cal = last_dog = self._clock()
+        while True:
+            await asyncio.sleep(TICK_S)
+            now = self._clock()
+            self._dispatch(self.pipeline.tick(now))
+            if now - last_status >= DEVICE_STATUS_EVERY_S:
+                for runtime in self.devices.values():
+                    if runtime.connected:
+                        span = now - runtime.rate_t0
+                        if span > 0:
+                            runtime.sample_rate_hz = (runtime.readings - runtime.rate_n0) / span
+                        runtime.rate_t0, runtime.rate_n0 = now, runtime.readings
+                    self._publish_device(runtime)
+                last_status = now
+            if now - last_cal >= CALIBRATION_CHECK_EVERY_S:
+                self._check_calibrations()
+                last_cal = now
+            if watchdog is not None and now - last_dog >= watchdog:
+                notify("WATCHDOG=1")
+                last_dog = now
+
+    def _check_calibrations(self) -> None:
+        """Raise or clear calibration due/overdue alarms for every database-calibrated channel."""
+        assert self.pipeline is not None
+        today = self._clock_utc().date()
+        for channel in self.pipeline.channels:
+            cfg = self.config.channel(channel)
+            if cfg.source != "database" or not self._is_counts_channel(channel):
+                continue
+            status = due_status(channel, self.pipeline.calibrations.get(channel), cfg, today)
+            for kind in (AlarmKind.CALIBRATION_DUE, AlarmKind.CALIBRATION_OVERDUE):
+                active = status is not None and status.kind is kind
+                self.pipeline.alarms.set(kind, channel, active, status.message if status else "")
+        self._dispatch(self.pipeline.drain())
+
+    def _is_counts_channel(self, channel: str) -> bool:
+        """Channels of load-cell drivers read raw counts and need a calibration."""
+        device = channel.split("/")[0]
+        return self.config.device(device).driver == "beam" or channel in self.config.channels
+
+    # ------------------------------------------------------------------------------ commands
+
+    async def handle_command(self, cmd: api.Command) -> api.Reply:
+        """Carry out one command; always returns a Reply (ok=False naming what was wrong)."""
+        name = cmd.command
+        rid = cmd.request_id
+        if self.pipeline is None:
+            return api.Reply(ok=False, command=name, request_id=rid, message="service not running")
+        try:
+            message, data = await self._execute(cmd)
+        except (SelectionError, CalibrationError, UnknownAlarmError, UnsupportedCommand) as err:
+            text = str(err) if not isinstance(err, KeyError) else f"no active alarm {err.args[0]!r}"
+            return api.Reply(ok=False, command=name, request_id=rid, message=text)
+        except (TransportError, StorageError) as err:
+            return api.Reply(ok=False, command=name, request_id=rid, message=str(err))
+        return api.Reply(ok=True, command=name, request_id=rid, message=message, data=data)
+
+    async def _execute(self, cmd: api.Command) -> tuple[str, dict[str, Any]]:
+        p = self.pipeline
+        assert p is not None
+        if isinstance(cmd, api.Tare):
+            channels = p.tare(self._known_device(cmd.device))
+            self._dispatch(p.drain())
+            return f"tared {', '.join(channels)}", {"channels": channels}
+        if isinstance(cmd, api.Zero):
+            return await self._zero(cmd.device)
+        if isinstance(cmd, api.Rearm):
+            self._dispatch(p.rearm())
+            return "re-armed", {}
+        if isinstance(cmd, api.SelectJob):
+            p.select_job(cmd.job)
+            return f"job {p.job} (spec {p.spec_name})", {"job": p.job, "spec": p.spec_name}
+        if isinstance(cmd, api.SelectSpec):
+            p.select_spec(cmd.spec, cmd.club)
+            return f"spec {p.spec_name}", {"spec": p.spec_name, "club": p.club}
+        if isinstance(cmd, api.SetClubId):
+            p.set_club_id(cmd.club_id)
+            return f"next club is {p.club_id}", {"club_id": p.club_id}
+        if isinstance(cmd, api.SetBalancePoint):
+            self._dispatch(p.set_balance_point(cmd.balance_point))
+            return "balance point set", {"balance_point_in": p.balance_point_in}
+        if isinstance(cmd, api.AcknowledgeAlarm):
+            alarm = p.alarms.acknowledge(cmd.key)
+            self._dispatch(p.drain())
+            return f"acknowledged {alarm.key}", {"key": alarm.key}
+        if isinstance(cmd, api.CalibrateZero):
+            return await self._calibrate_zero(cmd.channel)
+        if isinstance(cmd, api.CalibrateSpan):
+            return await self._calibrate_span(cmd)
+        assert isinstance(cmd, api.VerifyCheckMass)
+        return await self._verify(cmd)
+
+    def _known_device(self, device: str | None) -> str | None:
+        if device is not None and device not in self.devices:
+            raise SelectionError(f"no device {device!r}; devices: {', '.join(self.devices)}")
+        return device
+
+    async def _zero(self, device: str | None) -> tuple[str, dict[str, Any]]:
+        """Zero a scale with its own command; load-cell channels are zeroed by a tare."""
+        assert self.pipeline is not None
+        names = [self._known_device(device)] if device is not None else list(self.devices)
+        done: list[str] = []
+        for name in names:
+            assert name is not None
+            runtime = self.devices[name]
+            if runtime.config.driver == "scanner":
+                continue
+            session = runtime.session
+            if runtime.config.driver != "beam":
+                if session is None:
+                    raise TransportError(f"device {name!r} is not connected")
+                reply = await session.send_command("zero", reply_timeout_s=2.0)
+                if reply is not None and not reply.ok:
+                    raise SelectionError(f"device {name} refused to zero: {reply.detail}")
+                done.append(name)
+            else:
+                self.pipeline.tare(name)
+                done.append(name)
+        self._dispatch(self.pipeline.drain())
+        return f"zeroed {', '.join(done)}", {"devices": done}
+
+    def _counts_channel(self, channel: str) -> str:
+        assert self.pipeline is not None
+        if channel not in self.pipeline.channels:
+            raise SelectionError(
+                f"no channel {channel!r} in the geometry; channels: "
+                f"{', '.join(self.pipeline.channels)}"
+            )
+        if not self._is_counts_channel(channel):
+            raise SelectionError(f"{channel} is a gram scale; calibrate it with its own menu")
+        if self.config.channel(channel).source == "config":
+            raise SelectionError(
+                f"{channel} takes its calibration from the config (source = 'config')"
+            )
+        if channel in self._calibrating:
+            raise SelectionError(f"{channel} is already being calibrated")
+        return channel
+
+    async def _window(self, channel: str) -> CountsWindow:
+        """Raw counts over the next CALIBRATION_WINDOW_S seconds."""
+        assert self.pipeline is not None
+        self._calibrating.add(channel)
+        try:
+            start = self.pipeline.last_t
+            await asyncio.sleep(CALIBRATION_WINDOW_S)
+            return CountsWindow.of(self.pipeline.recent_raw(channel, start + 1e-9))
+        finally:
+            self._calibrating.discard(channel)
+
+    async def _store_calibration(self, record: CalibrationRecord) -> None:
+        assert self.store is not None
+        await asyncio.to_thread(self.store.add_calibration, record)
+
+    async def _calibrate_zero(self, channel: str) -> tuple[str, dict[str, Any]]:
+        assert self.pipeline is not None
+        channel = self._counts_channel(channel)
+        window = await self._window(channel)
+        current = self.pipeline.calibrations.get(channel)
+        record = zero_record(
+            self.config.station, channel, window, self._clock_utc(), current,
+            self.pipeline.device_info.get(channel.split("/")[0]),
+        )
+        await self._store_calibration(record)
+        self._pending_zero[channel] = record
+        if usable(record):
+            self.pipeline.set_calibration(record)
+            text = f"{channel} zeroed at {record.zero_counts:.0f} counts"
+        else:
+            text = f"{channel} zero taken ({record.zero_counts:.0f} counts); span next"
+        return text, {"calibration": record.model_dump(mode="json")}
+
+    async def _calibrate_span(self, cmd: api.CalibrateSpan) -> tuple[str, dict[str, Any]]:
+        assert self.pipeline is not None
+        channel = self._counts_channel(cmd.channel)
+        current = self.pipeline.calibrations.get(channel)
+        zero = self._pending_zero.get(channel) or current
+        if zero is None:
+            raise CalibrationError(f"{channel} has no zero; run calibrate_zero with it empty first")
+        window = await self._window(channel)
+        reference = ReferenceMass(
+            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
+        )
+        record = span_record(
+            self.config.station, channel, zero, window, reference, self._clock_utc(),
+            self.config.channel(channel).calibration_interval_days, current,
+            self.pipeline.device_info.get(channel.split("/")[0]),
+        )
+        await self._store_calibration(record)
+        self._pending_zero.pop(channel, None)
+        self.pipeline.set_calibration(record)
+        self._check_calibrations()
+        text = f"{channel} spanned: {record.counts_per_g:.3f} counts/g, due {record.next_due}"
+        return text, {"calibration": record.model_dump(mode="json")}
+
+    async def _verify(self, cmd: api.VerifyCheckMass) -> tuple[str, dict[str, Any]]:
+        assert self.pipeline is not None
+        channel = self._counts_channel(cmd.channel)
+        current = self.pipeline.calibrations.get(channel)
+        if current is None or not usable(current):
+            raise CalibrationError(f"{channel} has no span yet; calibrate the span first")
+        window = await self._window(channel)
+        reference = ReferenceMass(
+            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
+        )
+        tolerance = cmd.tolerance_g or default_verify_tolerance_g(
+            cmd.mass_g, self.config.capture.division_for(channel)
+        )
+        record = verify_record(
+            self.config.station, channel, current, window, reference, tolerance,
+            self._clock_utc(), self.pipeline.device_info.get(channel.split("/")[0]),
+        )
+        await self._store_calibration(record)
+        if not record.passed:
+            self.pipeline.alarms.raise_alarm(
+                AlarmKind.CALIBRATION_DUE,
+                channel,
+                f"{channel} failed verification: read {record.result_g:.2f} g on a "
+                f"{cmd.mass_g:g} g check mass",
+            )
+            self._dispatch(self.pipeline.drain())
+        verdict = "passed" if record.passed else "FAILED"
+        text = (
+            f"{channel} verify {verdict}: {record.result_g:.2f} g on {cmd.mass_g:g} g "
+            f"(residual {record.residual_g:+.2f} g, tolerance {tolerance:g} g)"
+        )
+        return text, {"calibration": record.model_dump(mode="json"), "passed": record.passed}
+

@@ -1,0 +1,118 @@
+"""Station config: examples are valid, bad files name the field and exit 2, units convert."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import tomllib
+from pathlib import Path
+
+import pytest
+
+from daemon.cli import main
+from daemon.config import ConfigError, load_config, parse_config
+from daemon.config_example import example_toml
+from tests.service_bench import station_toml
+
+GEOMETRIES = ("two_support", "lever_beam", "single_scale")
+
+
+@pytest.mark.parametrize("geometry", GEOMETRIES)
+def test_printed_example_passes_config_check(
+    geometry: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    assert main(["config", "example", "--geometry", geometry]) == 0
+    text = capsys.readouterr().out
+    assert text.lstrip().startswith("#")  # commented
+    path = tmp_path / "station.toml"
+    path.write_text(text)
+    assert main(["config", "check", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert f"geometry {geometry}" in out
+
+
+def test_example_values_and_units() -> None:
+    cfg = parse_config(tomllib.loads(example_toml("two_support")))
+    assert cfg.station == "bench-1"
+    assert cfg.geometry.type == "two_support"
+    assert cfg.geometry.position_b_in == 36.0
+    assert cfg.active_spec_name() == "irons-d2"
+    spec = cfg.specs["irons-d2"]
+    assert spec.total_weight is not None and spec.total_weight.min_g == 380.0
+    assert spec.clubs["pw"].swingweight == "D3"
+
+
+def test_metric_positions_convert_to_inches() -> None:
+    # 914.4 mm = 36 in exactly (1 in = 25.4 mm, international inch of 1959).
+    text = example_toml("two_support").replace(
+        'position_b_in = "36in"', 'position_b_in = "914.4mm"'
+    )
+    cfg = parse_config(tomllib.loads(text))
+    assert cfg.geometry.position_b_in == pytest.approx(36.0, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "field", "expected"),
+    [
+        ('position_b_in = "36in"', 'position_b_in = "far"', "geometry.position_b_in", "a length"),
+        ('position_b_in = "36in"', 'position_b_in = "36kg"', "geometry.position_b_in", "a length"),
+        ('type = "two_support"', 'type = "tripod"', "geometry", "two_support, lever_beam"),
+        ('channel_b = "beam/1"', 'channel_b = "scale/1"', "geometry.channel_b", "names no device"),
+        ('driver = "beam"', 'driver = "bean"', "devices[0].driver", "valid drivers"),
+        ('baudrate = 115200', 'baudrate = -1', "devices[0].baudrate", "greater than 0"),
+        ('swingweight = "D2"', 'swingweight = "H2"', "specs.irons-d2.swingweight", "letter"),
+        ('2026]\nspec = "irons-d2"', '2026]\nspec = "woods"', "jobs.larkspur-irons-2026.spec",
+         "not a spec"),
+        ('preset_name = "hx711_80hz"', 'preset_name = "fast"', "capture.preset_name", "hx711"),
+        ('tolerance_points = 0.5', 'tolerance_pts = 0.5', "specs.irons-d2.tolerance_pts",
+         "not a known setting"),
+    ],
+)
+def test_bad_field_is_named(old: str, new: str, field: str, expected: str) -> None:
+    text = example_toml("two_support")
+    assert old in text
+    with pytest.raises(ConfigError) as err:
+        parse_config(tomllib.loads(text.replace(old, new, 1)))
+    message = str(err.value)
+    assert message.startswith(field + ":"), message
+    assert expected in message
+
+
+def test_config_check_exits_2_with_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    path = tmp_path / "bad.toml"
+    path.write_text(example_toml("lever_beam").replace('lever_arm_in = "5in"', "lever_arm_in = -5"))
+    assert main(["config", "check", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err
+    assert "geometry.lever_arm_in" in err and "greater than 0" in err
+
+
+def test_not_toml_names_the_line(tmp_path: Path) -> None:
+    path = tmp_path / "broken.toml"
+    path.write_text('station = "bench-1"\n[storage\n')
+    with pytest.raises(ConfigError, match=r"not valid TOML.*line 2"):
+        load_config(path)
+
+
+def test_relative_storage_path_is_beside_the_config(tmp_path: Path) -> None:
+    path = tmp_path / "station.toml"
+    path.write_text(station_toml(port="/dev/null", db=Path("data/heft.db")))
+    assert load_config(path).storage.path == tmp_path / "data" / "heft.db"
+
+
+def test_heft_run_with_bad_config_exits_2_and_starts_nothing(tmp_path: Path) -> None:
+    db = tmp_path / "never.db"
+    path = tmp_path / "station.toml"
+    text = station_toml(port="/dev/null", db=db).replace(
+        'position_b_in = "36in"', "position_b_in = [1]"
+    )
+    path.write_text(text)
+    proc = subprocess.run(
+        [sys.executable, "-m", "daemon", "run", "--config", str(path)],
+        capture_output=True, text=True, timeout=60,
+    )
+    assert proc.returncode == 2
+    assert "geometry.position_b_in" in proc.stderr
+    assert not db.exists()  # nothing started: no database created
