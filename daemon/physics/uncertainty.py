@@ -13,8 +13,15 @@ from dataclasses import dataclass
 
 COVERAGE_FACTOR_K = 2.0
 # Central-difference step as a fraction of each input's own standard uncertainty: small enough
-# that curvature does not leak into the slope, large enough to stay clear of rounding noise.
+# that curvature does not leak into the slope. The floor, relative to the input's size, keeps a
+# tiny u (down to denormals) from drowning the slope in rounding noise.
 _STEP_PER_U = 1e-3
+_MIN_STEP_PER_VALUE = 1e-8
+_MIN_STEP = 1e-12
+
+
+def _step(x: UncertainValue) -> float:
+    return max(x.u * _STEP_PER_U, abs(x.value) * _MIN_STEP_PER_VALUE, _MIN_STEP)
 
 
 @dataclass(frozen=True)
@@ -80,14 +87,15 @@ def propagate(func: Callable[..., float], inputs: Mapping[str, UncertainValue]) 
     """y = func(**values) with u_c(y)^2 = sum (df/dx_i)^2 u(x_i)^2 (GUM eq. 10, independent inputs).
 
     Sensitivity coefficients come from central differences with a step of 1e-3 of each input's
-    own standard uncertainty. Inputs with u = 0 contribute nothing and are not perturbed.
+    own standard uncertainty (never below 1e-8 of its value). Inputs with u = 0 contribute
+    nothing and are not perturbed.
     """
     values = {name: x.value for name, x in inputs.items()}
     y = float(func(**values))
     terms = []
     for name, x in inputs.items():
         if x.u > 0:
-            c = sensitivity(func, values, name, x.u * _STEP_PER_U)
+            c = sensitivity(func, values, name, _step(x))
             terms.append(c * x.u)
     return UncertainValue(y, combine_u(*terms))
 
