@@ -1,0 +1,102 @@
+"""``heft export``: stored measurements as CSV or JSON Lines, filtered by time, job and verdict."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+from daemon.export import FORMATS
+from daemon.measurement import Verdict
+
+_TIME_FORM = "an ISO 8601 date or time, e.g. 2026-11-30 or 2026-11-30T14:00:00Z"
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "export",
+        help="write stored measurements as CSV or JSON Lines",
+        description=(
+            "Write stored measurements, oldest first. Times without a zone are local time; "
+            "--since is inclusive, --until exclusive."
+        ),
+    )
+    source = parser.add_mutually_exclusive_group(required=True)
+    source.add_argument(
+        "--config", type=Path, metavar="FILE", help="station config (its storage.path)"
+    )
+    source.add_argument("--db", type=Path, metavar="FILE", help="the station's SQLite file")
+    parser.add_argument(
+        "--format",
+        choices=sorted(FORMATS),
+        help="output format (default: from the --output suffix, else csv)",
+    )
+    parser.add_argument("-o", "--output", type=Path, metavar="FILE", help="default: stdout")
+    parser.add_argument("--since", metavar="TIME", help=f"from this time ({_TIME_FORM})")
+    parser.add_argument("--until", metavar="TIME", help="up to, not including, this time")
+    parser.add_argument("--job", help="only this job")
+    parser.add_argument("--verdict", choices=[v.value for v in Verdict], help="only this verdict")
+    parser.add_argument("--station", help="only this station")
+    parser.set_defaults(func=_export, _parser=parser)
+
+
+def parse_time(text: str) -> datetime:
+    """ISO 8601 date or date-time; without a zone it is local time."""
+    value = datetime.fromisoformat(text)
+    return value if value.tzinfo is not None else value.astimezone()
+
+
+def _export(args: argparse.Namespace) -> int:
+    parser: argparse.ArgumentParser = args._parser
+    since = until = None
+    for name in ("since", "until"):
+        text = getattr(args, name)
+        if text is None:
+            continue
+        try:
+            value = parse_time(text)
+        except ValueError:
+            parser.error(f"argument --{name}: expected {_TIME_FORM}, got {text!r}")
+        if name == "since":
+            since = value
+        else:
+            until = value
+    fmt = args.format
+    if fmt is None:
+        suffix = args.output.suffix.lstrip(".").lower() if args.output else ""
+        fmt = suffix if suffix in FORMATS else "csv"
+
+    db_path: Path = args.db
+    if args.config is not None:
+        from daemon.config import ConfigError, load_config
+
+        try:
+            db_path = load_config(args.config).storage.path
+        except ConfigError as err:
+            print(f"heft export: {err}", file=sys.stderr)
+            return 2
+    if not db_path.is_file():
+        parser.error(f"argument --db: no database file at {db_path}")
+
+    from daemon.storage import StorageError, Store
+
+    try:
+        with Store(db_path) as store:
+            rows = store.measurements(
+                since=since, until=until, job=args.job, verdict=args.verdict, station=args.station
+            )
+            if args.output is None:
+                n = FORMATS[fmt](rows, sys.stdout)
+            else:
+                with args.output.open("w", encoding="utf-8", newline="") as out:
+                    n = FORMATS[fmt](rows, out)
+    except StorageError as err:
+        print(f"heft export: {err}", file=sys.stderr)
+        return 1
+    except OSError as err:
+        print(f"heft export: --output: cannot write {args.output}: {err.strerror}", file=sys.stderr)
+        return 1
+    print(f"heft export: {n} measurement{'s' if n != 1 else ''} ({fmt})", file=sys.stderr)
+    return 0
