@@ -486,7 +486,7 @@ async def test_simulated_scale_from_weights_through_pyusb() -> None:
 
 async def test_simulated_scale_in_ounces_real_time() -> None:
     backend = fake_scale_backend_from_weights(
-        [(0.0, 390.0894382, "stable"), (0.05, 0.0, "zero")], unit="oz", exponent=-2,
+        [(0.0, 390.0894382, "stable"), (0.5, 0.0, "zero")], unit="oz", exponent=-2,
         pace="realtime", end="silent")
     transport = UsbHidTransport(0x1209, 0x0001, backend=backend, read_timeout_ms=100)
     driver = HidPosDriver("sim")
