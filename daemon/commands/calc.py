@@ -607,7 +607,10 @@ def print_human(result: CalcResult, stream: TextIO) -> None:
             f"  then           {corr.corrected_total_weight_g:8.1f} g, "
             f"balance point {corr.corrected_balance_point_in:.2f} in"
         )
-    if result.bench.carries_u:
+    shown_u = result.bench.carries_u or (
+        result.moi_g_in2 is not None and result.moi_g_in2[1] is not None
+    )
+    if shown_u or (result.correction is not None and result.correction.mass_g_u is not None):
         w("± values are expanded uncertainties (k = 2, about 95 %).")
 
 
@@ -680,7 +683,11 @@ def register(subparsers: Any) -> None:
         action="append",
         help="another mass: tape, tip weight, butt weight (repeatable)",
     )
-    g("--length-change", metavar="LEN", help="make the club longer (+) or shorter (-)")
+    g(
+        "--length-change",
+        metavar="LEN",
+        help="make the club longer (+) or shorter (-); write --length-change=-0.5in",
+    )
     g(
         "--change-at",
         choices=("tip", "butt"),
