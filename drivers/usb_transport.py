@@ -176,7 +176,12 @@ class UsbHidTransport:
         except (usb.core.USBError, usb.core.NoBackendError) as err:
             raise TransportError(f"{self.description}: cannot list USB devices: {err}") from err
         if self.serial is not None:
-            found = [d for d in found if _string(d, d.iSerialNumber) == self.serial]
+            matching = [d for d in found if _string(d, d.iSerialNumber) == self.serial]
+            for other in found:  # reading the serial opened them; give them back
+                if other not in matching:
+                    with contextlib.suppress(usb.core.USBError):
+                        usb.util.dispose_resources(other)
+            found = matching
         if not found:
             raise TransportError(
                 f"{self.description}: no such USB device is connected (`heft devices` lists "
