@@ -538,3 +538,38 @@ async def test_real_time_host_that_reads_late_gets_only_the_newest_report() -> N
         await transport.close()
     assert reading.value == pytest.approx(30.0)
     assert backend.device.reports_sent == 1
+
+
+async def test_a_hid_session_records_and_replays_in_the_heft_recording_format(
+    tmp_path: Path,
+) -> None:
+    # One interrupt transfer = one chunk, so a replay feeds the driver the same whole reports.
+    from drivers.recording import (
+        RecordingHeader,
+        RecordingTransport,
+        RecordingWriter,
+        read_recording,
+        replay_outputs,
+    )
+
+    path = tmp_path / "hid.jsonl"
+    header = RecordingHeader(device="bench-1-scale", driver="hid_pos", binary=True)
+    live_driver = HidPosDriver("bench-1-scale")
+    with RecordingWriter(path, header) as writer:
+        transport = RecordingTransport(
+            UsbHidTransport(VID, PID, backend=_backend("garbled_reports")), writer)
+        await transport.open()
+        try:
+            live = [o for _ in range(11)
+                    for o in live_driver.feed(await transport.read(), 0.0)]
+            await transport.write(live_driver.command("zero"))
+        finally:
+            await transport.close()
+    recording = read_recording(path)
+    assert [c.data for c in recording.chunks if c.direction == "tx"] == [b"\x02\x01"]
+    replay_driver = HidPosDriver("bench-1-scale")
+    replayed = replay_outputs(recording, replay_driver)
+    assert [(r.value, r.flags, r.raw) for r in replayed if isinstance(r, Reading)] == [
+        (r.value, r.flags, r.raw) for r in live if isinstance(r, Reading)]
+    assert len(replayed) == 2
+    assert replay_driver.stats.frame_errors == live_driver.stats.frame_errors == 9
