@@ -423,6 +423,16 @@ class FakeUsbDevice:
             self.history.append("unplugged")
         self._unplug_now.set()
 
+    def replug(self) -> None:
+        """Plug the cable back in: the kernel driver binds again; the timeline goes on."""
+        with self._lock:
+            self.unplugged = False
+            self._unplug_now.clear()
+            self.claimed.clear()
+            for intf in self.kernel_driver_attached:
+                self.kernel_driver_attached[intf] = self.definition.kernel_driver_active
+            self.history.append("replugged")
+
     # -- descriptors ------------------------------------------------------------------------
 
     def device_descriptor(self) -> _DeviceDescriptor:
@@ -599,7 +609,7 @@ class FakeUsbDevice:
         if due_s > now_s:
             self._wait(due_s - now_s)
         with self._lock:
-            self._alive()  # unplugged (by a test) while we waited
+            self._handle_ok(handle)  # unplugged or closed while we waited
             self._advance()
             if event.unplug:
                 self.unplugged = True

@@ -573,3 +573,24 @@ async def test_a_hid_session_records_and_replays_in_the_heft_recording_format(
         (r.value, r.flags, r.raw) for r in live if isinstance(r, Reading)]
     assert len(replayed) == 2
     assert replay_driver.stats.frame_errors == live_driver.stats.frame_errors == 9
+
+
+async def test_a_replugged_scale_can_be_opened_again() -> None:
+    backend = _backend("unplug_mid_stream")
+    transport = UsbHidTransport(VID, PID, backend=backend)
+    await transport.open()
+    await _read_all(transport, HidPosDriver("s"), 3)
+    with pytest.raises(TransportError):
+        await transport.read()
+    await transport.close()
+    with pytest.raises(TransportError, match="no such USB device"):
+        await UsbHidTransport(VID, PID, backend=backend).open()
+    backend.device.replug()
+    again = UsbHidTransport(VID, PID, backend=backend)
+    await again.open()
+    try:
+        [reading] = await _read_all(again, HidPosDriver("s"), 1)  # the event after the unplug
+    finally:
+        await again.close()
+    assert reading.value == pytest.approx(310.2)
+    assert backend.device.kernel_driver_attached == {0: True}
