@@ -1,0 +1,207 @@
+"""The dashboard under Textual's headless pilot, fed by a scripted replay of events."""
+
+from __future__ import annotations
+
+import asyncio
+from collections.abc import Callable
+
+from textual.pilot import Pilot
+from textual.widgets import ContentSwitcher, Static
+
+from daemon.command_api import (
+    AcknowledgeAlarm,
+    CalibrateSpan,
+    CalibrateZero,
+    Command,
+    Reply,
+    SelectJob,
+    VerifyCheckMass,
+)
+from daemon.events import LiveReading
+from drivers.reading import Flag
+from tui.app import HeftDashboard
+from tui.calibration import CalibrationScreen
+from tui.readout import VerdictBanner
+from tui.scripted_bench import JOBS, STATION, out_of_spec_event, session_events
+from tui.source import ScriptedSource
+
+SIZE = (120, 40)
+
+
+async def settle(pilot: Pilot[None], app: HeftDashboard, until: Callable[[], bool]) -> None:
+    """Pause until ``until()`` holds (generous limit: the machine is shared and slow)."""
+    for _ in range(200):
+        if until():
+            return
+        await pilot.pause(0.05)
+    raise AssertionError("condition not reached within 10 s")
+
+
+async def open_calibration(pilot: Pilot[None], app: HeftDashboard) -> CalibrationScreen:
+    await settle(pilot, app, lambda: len(app.state.channels) == 2)
+    await pilot.press("c")
+    await settle(pilot, app, lambda: isinstance(app.screen, CalibrationScreen))
+    screen = app.screen
+    assert isinstance(screen, CalibrationScreen)
+    return screen
+
+
+def make_app(
+    reply: Callable[[Command], Reply] | None = None, *, commands_enabled: bool = True
+) -> tuple[HeftDashboard, ScriptedSource]:
+    source = ScriptedSource(
+        session_events(), reply=reply, jobs=JOBS, commands_enabled=commands_enabled
+    )
+    return HeftDashboard(source), source
+
+
+async def test_out_of_spec_capture_shows_fail_within_one_refresh() -> None:
+    app, source = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 7)
+        banner = app.query_one(VerdictBanner)
+        await settle(pilot, app, lambda: banner.has_class("pass"))
+        source.push(out_of_spec_event())
+        await pilot.pause()  # the event worker folds it in
+        assert app.state.last_measurement is not None
+        assert app.state.last_measurement.seq == 99
+        before = app.refreshes
+        await settle(pilot, app, lambda: app.refreshes > before)  # exactly one refresh later
+        assert banner.has_class("fail")
+        text = str(banner.render())
+        assert "FAIL" in text and "ABOVE" in text
+
+
+async def test_calibration_flow_sends_zero_span_verify() -> None:
+    def reply(cmd: Command) -> Reply:
+        data: dict[str, object] = {}
+        if isinstance(cmd, VerifyCheckMass):
+            data = {"result_g": 200.03, "residual_g": 0.03, "passed": True,
+                    "next_due": "2026-06-12"}
+        return Reply(ok=True, command=cmd.command, data=data)
+
+    app, source = make_app(reply)
+    async with app.run_test(size=SIZE) as pilot:
+        screen = await open_calibration(pilot, app)
+        await pilot.press("down", "enter")  # beam/1
+        await settle(pilot, app, lambda: screen.step == "step-zero")
+        await pilot.press("enter")
+        await settle(pilot, app, lambda: screen.step == "step-span")
+        await pilot.press(*"500", "tab", "tab", *"R-500-07", "enter")
+        await settle(pilot, app, lambda: screen.step == "step-verify")
+        await pilot.press(*"200g", "enter")
+        await settle(pilot, app, lambda: screen.step == "step-result")
+        assert source.sent == [
+            CalibrateZero(command="calibrate_zero", channel="beam/1"),
+            CalibrateSpan(command="calibrate_span", channel="beam/1", mass_g=500.0,
+                          weight_class="M1", weight_id="R-500-07"),
+            VerifyCheckMass(command="verify", channel="beam/1", mass_g=200.0),
+        ]
+        result = str(screen.query_one("#cal-result", Static).render())
+        assert "2026-06-12" in result and "YES" in result
+        await pilot.press("enter")  # Done
+        await settle(pilot, app, lambda: not isinstance(app.screen, CalibrationScreen))
+
+
+async def test_refused_span_stays_on_the_step_with_the_reason() -> None:
+    def reply(cmd: Command) -> Reply:
+        if isinstance(cmd, CalibrateSpan):
+            return Reply(ok=False, command=cmd.command, message="beam/0 is not stable")
+        return Reply(ok=True, command=cmd.command)
+
+    app, source = make_app(reply)
+    async with app.run_test(size=SIZE) as pilot:
+        screen = await open_calibration(pilot, app)
+        await pilot.press("enter", "enter")
+        await settle(pilot, app, lambda: screen.step == "step-span")
+        await pilot.press("enter")  # no mass typed: refused here, nothing sent
+        await pilot.pause()
+        assert len(source.sent) == 1
+        assert "mass" in str(screen.query_one("#cal-message", Static).render())
+        await pilot.press(*"500", "enter")
+        await settle(pilot, app, lambda: len(source.sent) == 2 and not screen.busy)
+        await pilot.pause()
+        assert screen.step == "step-span"
+        assert "not stable" in str(screen.query_one("#cal-message", Static).render())
+        assert screen.query_one(ContentSwitcher).current == "step-span"
+
+
+async def test_job_selection_sends_select_job() -> None:
+    app, source = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 7)
+        await pilot.press("j")
+        await pilot.pause()
+        await pilot.press("down", "enter")  # the picker starts on the current job, LK-2417
+        await settle(pilot, app, lambda: bool(source.sent))
+        assert source.sent == [SelectJob(command="select_job", job="LK-2418")]
+        await settle(pilot, app, lambda: app.state.selected_job == "LK-2418")
+
+
+async def test_typed_job_name_is_selected() -> None:
+    app, source = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 7)
+        await pilot.press("j")
+        await pilot.pause()
+        await pilot.press("tab", *"LK-2500", "enter")
+        await settle(pilot, app, lambda: bool(source.sent))
+        assert source.sent == [SelectJob(command="select_job", job="LK-2500")]
+
+
+async def test_acknowledge_newest_alarm_from_live_and_selected_from_alarms_tab() -> None:
+    app, source = make_app()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.unacknowledged()) == 2)
+        newest = app.state.unacknowledged()[0].key
+        await pilot.press("a")
+        await settle(pilot, app, lambda: len(source.sent) == 1)
+        assert source.sent[0] == AcknowledgeAlarm(command="ack_alarm", key=newest)
+        await pilot.press("4")
+        await pilot.pause()
+        # History, newest first: out-of-spec cleared, out-of-spec raised, calibration due, ...
+        await pilot.press("down")
+        await pilot.press("a")  # a cleared alarm: nothing to acknowledge
+        await pilot.pause(0.2)
+        assert len(source.sent) == 1
+        await pilot.press("down", "a")
+        await settle(pilot, app, lambda: len(source.sent) == 2)
+        assert source.sent[1] == AcknowledgeAlarm(command="ack_alarm", key="calibration_due:beam/1")
+        assert newest == "device_offline:scan"
+
+
+async def test_read_only_dashboard_sends_nothing() -> None:
+    app, source = make_app(commands_enabled=False)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.unacknowledged()) == 2)
+        await pilot.press("a", "t", "r", "c")
+        await pilot.pause(0.2)
+        assert source.sent == []
+        assert not isinstance(app.screen, CalibrationScreen)
+        assert "read-only" in app.sub_title
+
+
+async def test_keeps_up_with_four_channels_at_80_per_second() -> None:
+    app, source = make_app()
+    channels = [f"beam/{i}" for i in range(4)]
+    seconds = 10
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 7)
+        applied = app.state.events_applied
+        sent = 0
+        for tick in range(80 * seconds):  # pushed in 0.1 s bursts, as the service would
+            t = 2000.0 + tick / 80
+            source.push(*(LiveReading(STATION, ch, t, 100.0 + tick, Flag.STABLE)
+                          for ch in channels))
+            sent += len(channels)
+            if tick % 8 == 7:
+                await asyncio.sleep(0)
+        await settle(pilot, app, lambda: app.state.events_applied - applied == sent)
+        assert source.dropped == 0
+        trace = app.state.channels["beam/3"]
+        assert trace.last_value_g == 100.0 + 80 * seconds - 1
+        before = app.refreshes
+        await settle(pilot, app, lambda: app.refreshes > before + 1)
+        assert app.ui_errors == 0
+        shown = str(app.query_one("#ch-beam-3 .channel-value", Static).render())
+        assert f"{100.0 + 80 * seconds - 1:.2f}" in shown

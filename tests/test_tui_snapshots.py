@@ -1,0 +1,101 @@
+"""SVG snapshots of the dashboard's screens at 120x40, from the fixed scripted session.
+
+Regenerate after an intended change with ``pytest tests/test_tui_snapshots.py --snapshot-update``
+and look at the SVGs before committing them (textual is pinned in pyproject.toml).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+from textual.pilot import Pilot
+
+from daemon.command_api import Command, Reply, VerifyCheckMass
+from tui.app import HeftDashboard
+from tui.scripted_bench import JOBS, session_events
+from tui.source import ScriptedSource
+
+SIZE = (120, 40)
+Snap = Callable[..., bool]
+
+
+def _reply(cmd: Command) -> Reply:
+    if isinstance(cmd, VerifyCheckMass):
+        return Reply(
+            ok=True,
+            command=cmd.command,
+            data={"result_g": 199.98, "residual_g": -0.02, "tolerance_g": 0.1, "passed": True,
+                  "next_due": "2026-06-12", "calibration_id": "cal-beam0-0314"},
+        )
+    return Reply(ok=True, command=cmd.command)
+
+
+def _app() -> HeftDashboard:
+    return HeftDashboard(ScriptedSource(session_events(), jobs=JOBS, reply=_reply))
+
+
+async def _replayed(pilot: Pilot[Any]) -> None:
+    """Wait until the whole session is folded in and drawn."""
+    app = pilot.app
+    assert isinstance(app, HeftDashboard)
+    for _ in range(200):
+        if len(app.state.measurements) == 7 and app.source.inbox.empty():
+            break
+        await pilot.pause(0.05)
+    app.refresh_views()
+    app.refresh_views()  # rows mounted by the first pass are filled by the second
+    await pilot.pause(0.2)
+
+
+def test_live_screen(snap_compare: Snap) -> None:
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=_replayed)
+
+
+def test_set_screen(snap_compare: Snap) -> None:
+    async def go(pilot: Pilot[Any]) -> None:
+        await _replayed(pilot)
+        await pilot.press("2")
+        await pilot.pause(0.2)
+
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+
+def test_devices_screen(snap_compare: Snap) -> None:
+    async def go(pilot: Pilot[Any]) -> None:
+        await _replayed(pilot)
+        await pilot.press("3")
+
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+
+def test_alarms_screen(snap_compare: Snap) -> None:
+    async def go(pilot: Pilot[Any]) -> None:
+        await _replayed(pilot)
+        await pilot.press("4")
+
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+
+def test_calibration_result_screen(snap_compare: Snap) -> None:
+    async def go(pilot: Pilot[Any]) -> None:
+        await _replayed(pilot)
+        await pilot.press("c")
+        await pilot.pause(0.1)
+        await pilot.press("enter", "enter")
+        await pilot.pause(0.2)
+        await pilot.press(*"500", "tab", "tab", *"R-500-07", "enter")
+        await pilot.pause(0.2)
+        await pilot.press(*"200", "enter")
+        await pilot.pause(0.3)
+
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+
+def test_help_screen(snap_compare: Snap) -> None:
+    async def go(pilot: Pilot[Any]) -> None:
+        await _replayed(pilot)
+        await pilot.press("question_mark")
+        await pilot.pause(0.2)
+
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)

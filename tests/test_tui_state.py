@@ -1,0 +1,102 @@
+"""The dashboard's pure parts: folding events into state, words for verdicts, the band gauge."""
+
+from __future__ import annotations
+
+from daemon.events import AlarmKind, LiveReading
+from daemon.measurement import Verdict
+from drivers.reading import Flag
+from tui.format import alarm_banner_text, verdict_banner, with_u
+from tui.readout import gauge_text
+from tui.scripted_bench import JOB, STATION, out_of_spec_event, session_events
+from tui.set_view import latest_per_club, points_for
+from tui.state import DashboardState, club_order_key
+
+
+def test_session_folds_into_state() -> None:
+    state = DashboardState()
+    state.apply_all(session_events())
+    assert state.station == STATION
+    assert [m.club for m in state.measurements] == ["4i", "5i", "6i", "7i", "8i", "9i", "PW"]
+    assert [m.verdict for m in state.measurements].count(Verdict.FAIL) == 1
+    assert set(state.channels) == {"beam/0", "beam/1"}
+    # The out-of-spec alarm was raised at 7i and cleared at 8i; two others stay active.
+    kinds = {a.kind for a in state.active_alarms()}
+    assert kinds == {AlarmKind.DEVICE_OFFLINE, AlarmKind.CALIBRATION_DUE}
+    assert any(a.kind is AlarmKind.OUT_OF_SPEC for a in state.alarm_history)
+    assert state.devices["scan"].connected is False
+    assert state.current_job() == JOB
+
+
+def test_other_stations_are_listed_not_shown() -> None:
+    state = DashboardState("qc-1")
+    state.apply(LiveReading("bench-1", "beam/0", 1.0, 12.0, Flag.NONE))
+    state.apply(LiveReading("qc-1", "scale/0", 1.0, 400.0, Flag.STABLE))
+    assert state.stations == ["bench-1", "qc-1"]
+    assert list(state.channels) == ["scale/0"]
+    state.switch_station("bench-1")
+    assert state.channels == {}
+    assert state.stations == ["bench-1", "qc-1"]
+
+
+def test_repeated_measurement_id_is_ignored() -> None:
+    state = DashboardState()
+    event = out_of_spec_event()
+    state.apply(event)
+    state.add_measurement(event.measurement)  # e.g. the same row again from the back-fill
+    assert len(state.measurements) == 1
+
+
+def test_fail_banner_names_the_check_and_direction() -> None:
+    banner = verdict_banner(out_of_spec_event().measurement)
+    assert banner.word == "FAIL"
+    assert banner.css_class == "fail"
+    assert "swing weight D3.7 ABOVE D1.5-D2.5 by 1.20 pt" in banner.reason
+    assert verdict_banner(None).word == "WAITING"
+
+
+def test_alarm_banner_has_words_and_count() -> None:
+    state = DashboardState()
+    state.apply_all(session_events())
+    text = alarm_banner_text(state.unacknowledged())
+    assert text.startswith("ALARM")
+    assert "(+1 more)" in text
+    assert alarm_banner_text([]) == ""
+
+
+def test_gauge_marks_a_fail_in_words() -> None:
+    check = out_of_spec_event().measurement.checks[0]
+    plain = gauge_text("swing weight", check, 60).plain
+    lines = plain.split("\n")
+    assert "ABOVE" in lines[2]
+    assert "D1.5" in lines[3] and "D2.5" in lines[3]
+    # The marker sits to the right of the band's high edge.
+    assert lines[2].index("▲") > lines[1].rindex("┃")
+
+
+def test_value_with_uncertainty() -> None:
+    assert with_u(412.345, 0.14, 1, "g") == "412.3 ± 0.1 g"
+    assert with_u(412.345, None, 1, "g") == "412.3 g"
+    assert with_u(None, None, 1, "g") == "-"
+
+
+def test_clubs_sort_as_a_set_reads() -> None:
+    clubs = ["PW", "9i", "SW", "4i", "10i", "GW", "3H", "5W", "odd"]
+    assert sorted(clubs, key=club_order_key) == [
+        "5W", "3H", "4i", "9i", "10i", "PW", "GW", "SW", "odd"
+    ]
+
+
+def test_set_points_keep_the_latest_of_each_club() -> None:
+    events = session_events()
+    state = DashboardState()
+    state.apply_all(events)
+    redo = out_of_spec_event(seq=50)  # 7i measured again
+    state.apply(redo)
+    latest = latest_per_club(list(state.measurements))
+    assert len(latest) == 7
+    seven = next(m for m in latest if m.club == "7i")
+    assert seven.seq == 50
+    centred = points_for(list(state.measurements), "total_weight", centred=True)
+    for p in centred:
+        assert p.low is not None and p.high is not None
+        assert abs(p.low + p.high) < 1e-9  # centred on the band

@@ -1,0 +1,131 @@
+"""Tables: recent measurements, devices, alarm history."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+from rich.text import Text
+from textual.coordinate import Coordinate
+from textual.widgets import DataTable
+
+from daemon.events import Alarm, DeviceStatus
+from daemon.measurement import Measurement, Verdict
+from tui.format import ALARM_KIND_WORDS, VERDICT_WORDS, alarm_state_word
+
+VERDICT_STYLE: dict[Verdict, str] = {
+    Verdict.PASS: "bold green",
+    Verdict.NEAR_LIMIT: "bold yellow",
+    Verdict.FAIL: "bold white on red",
+    Verdict.NO_SPEC: "dim",
+}
+
+
+def _num(value: float | None, decimals: int) -> str:
+    return "-" if value is None else f"{value:.{decimals}f}"
+
+
+class _Table(DataTable[str | Text]):
+    """A read-mostly table rebuilt from state, keeping the cursor on the same row key."""
+
+    COLUMNS: tuple[str, ...] = ()
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id, cursor_type="row", zebra_stripes=True)
+
+    def on_mount(self) -> None:
+        self.add_columns(*self.COLUMNS)
+
+    def _rebuild(self, rows: Iterable[tuple[str, tuple[str | Text, ...]]]) -> None:
+        keep = self.cursor_row
+        self.clear()
+        for key, cells in rows:
+            self.add_row(*cells, key=key)
+        if self.row_count:
+            self.move_cursor(row=min(keep, self.row_count - 1), animate=False)
+
+
+class MeasurementsTable(_Table):
+    COLUMNS = ("#", "time UTC", "club", "club id", "swing wt", "± pt", "total g", "BP in",
+               "moment g·in", "verdict")
+
+    def show(self, measurements: Iterable[Measurement], limit: int = 100) -> None:
+        newest_first = list(measurements)[::-1][:limit]
+        self._rebuild(
+            (
+                str(m.id),
+                (
+                    str(m.seq),
+                    m.time_utc.strftime("%H:%M:%S"),
+                    m.club or "-",
+                    m.club_id or "-",
+                    m.swingweight,
+                    _num(m.swingweight_points_u, 2),
+                    f"{m.total_weight_g:.1f}",
+                    f"{m.balance_point_in:.2f}",
+                    f"{m.moment_g_in:.0f}",
+                    Text(VERDICT_WORDS[m.verdict], style=VERDICT_STYLE[m.verdict]),
+                ),
+            )
+            for m in newest_first
+        )
+
+
+class DevicesTable(_Table):
+    COLUMNS = ("device", "state", "port", "rate /s", "frame errors", "last reading",
+               "model", "firmware")
+
+    def show(self, devices: Iterable[DeviceStatus]) -> None:
+        self._rebuild(
+            (
+                d.device,
+                (
+                    d.device,
+                    Text("connected", style="green") if d.connected
+                    else Text("NOT CONNECTED", style="bold white on red"),
+                    d.port,
+                    _num(d.sample_rate_hz, 1),
+                    str(d.frame_errors),
+                    _num(d.last_value, 2),
+                    d.model or "-",
+                    d.firmware or "-",
+                ),
+            )
+            for d in sorted(devices, key=lambda d: d.device)
+        )
+
+
+class AlarmsTable(_Table):
+    """Alarm history, newest first; the row key is the alarm key so `a` can acknowledge it."""
+
+    COLUMNS = ("time UTC", "state", "kind", "source", "message")
+
+    def show(self, history: Iterable[Alarm], active: dict[str, Alarm]) -> None:
+        rows: list[tuple[str, tuple[str | Text, ...]]] = []
+        seen: set[str] = set()
+        for n, alarm in enumerate(reversed(list(history))):
+            # Show each alarm's current state on its newest line; older lines are history.
+            current = active.get(alarm.key) if alarm.key not in seen else None
+            seen.add(alarm.key)
+            shown = current or alarm
+            word = alarm_state_word(shown) if current or not alarm.active else "raised"
+            style = "bold white on red" if word == "ACTIVE" else (
+                "yellow" if word.startswith("ACTIVE") else "dim")
+            rows.append(
+                (
+                    f"{n}|{alarm.key}",
+                    (
+                        alarm.time_utc.strftime("%Y-%m-%d %H:%M:%S"),
+                        Text(word, style=style),
+                        ALARM_KIND_WORDS.get(alarm.kind, alarm.kind.value),
+                        alarm.source,
+                        alarm.message,
+                    ),
+                )
+            )
+        self._rebuild(rows)
+
+    def selected_alarm_key(self) -> str | None:
+        if not self.row_count:
+            return None
+        row_key = self.coordinate_to_cell_key(Coordinate(self.cursor_row, 0)).row_key.value
+        return None if row_key is None else row_key.split("|", 1)[1]
