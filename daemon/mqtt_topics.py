@@ -162,6 +162,76 @@ class Topics:
 
 
 @dataclass(frozen=True, slots=True)
+class TopicSpec:
+    """One row of the topic reference (``docs/mqtt.md`` is generated from ``TOPIC_SPECS``)."""
+
+    leaf: str  # below '<root>/<station>/'
+    qos: int
+    retain: bool
+    direction: Literal["out", "in"]  # out: the station publishes; in: the station subscribes
+    payload: str  # a key of ``daemon.commands.schema.PAYLOADS``
+    summary: str
+
+
+TOPIC_SPECS: Final[tuple[TopicSpec, ...]] = (
+    TopicSpec(
+        STATUS,
+        1,
+        True,
+        "out",
+        "availability",
+        "'online' while connected; the broker publishes the last will 'offline' when the "
+        "station vanishes, and the station publishes 'offline' itself on an orderly stop",
+    ),
+    TopicSpec(
+        MEASUREMENT,
+        1,
+        False,
+        "out",
+        "measurement",
+        "every captured club, from the durable outbox; may repeat after a reconnect, always "
+        "under the same id: drop duplicates by id",
+    ),
+    TopicSpec(
+        MEASUREMENT_LAST,
+        1,
+        True,
+        "out",
+        "measurement",
+        "the newest measurement, for dashboards and Home Assistant",
+    ),
+    TopicSpec(
+        f"{LIVE}/<device>/<index>",
+        0,
+        False,
+        "out",
+        "live_reading",
+        "newest reading of one channel, at most mqtt.live_max_rate_hz per channel",
+    ),
+    TopicSpec(CAPTURE, 1, True, "out", "capture_state", "the capture engine's state"),
+    TopicSpec(f"{DEVICE}/<device>", 1, True, "out", "device_status", "one device's health"),
+    TopicSpec(
+        ALARMS,
+        1,
+        True,
+        "out",
+        "alarms",
+        "every alarm active now (empty list: all clear), re-published on each change",
+    ),
+    TopicSpec(ALARM_EVENT, 1, False, "out", "alarm", "each raise, clear or acknowledgement"),
+    TopicSpec(CMD, 1, False, "in", "command", "commands to the station (see 'Commands')"),
+    TopicSpec(
+        CMD_REPLY,
+        1,
+        False,
+        "out",
+        "reply",
+        "replies to commands that came without an MQTT 5 response topic",
+    ),
+)
+
+
+@dataclass(frozen=True, slots=True)
 class TopicMatch:
     """What ``parse_topic`` found: the station, the leaf kind and any trailing levels."""
 
