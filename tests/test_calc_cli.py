@@ -208,6 +208,42 @@ def test_pendulum_moi(capsys: pytest.CaptureFixture[str]) -> None:
         (["--weight", "400", "--balance-point", "29", "--display-step", "-1"], "--display-step"),
         (["--weight", "400", "--balance-point", "29", "--period", "1.5"], "--pivot"),
         (["--weight", "0", "--balance-point", "29"], "total weight"),
+        (
+            [
+                "--weight",
+                "400",
+                "--balance-point",
+                "29",
+                "--period",
+                "1.5",
+                "--pivot",
+                "1",
+                "--amplitude",
+                "200",
+            ],
+            "--amplitude",
+        ),
+        (
+            ["--weight", "400", "--balance-point", "29", "--period", "nan", "--pivot", "1"],
+            "--period",
+        ),
+        (
+            [
+                "--head",
+                "-5",
+                "--shaft",
+                "120",
+                "--shaft-length",
+                "41",
+                "--length",
+                "37",
+                "--shaft-balance-point",
+                "20",
+                "--grip",
+                "50",
+            ],
+            "head",
+        ),
         (["--head", "260"], "--length"),
         (["--weight", "400", "--balance-point", "29", "--extra", "5g@36"], "--extra"),
         (["--weight", "400", "--balance-point", "29", "--length-change", "1"], "--length-change"),
@@ -266,6 +302,9 @@ def test_bad_parts_file_names_the_key(capsys: pytest.CaptureFixture[str], tmp_pa
     path.write_text(PARTS_TOML.replace('mass = "120g"', 'mass = "heavy"'), encoding="utf-8")
     code, _, err = run_calc(["--parts", str(path)], capsys)
     assert code == 2 and "shaft.mass" in err
+    path.write_text(PARTS_TOML.replace("[grip]", "[grip]\nweigth = 3"), encoding="utf-8")
+    code, _, err = run_calc(["--parts", str(path)], capsys)
+    assert code == 2 and "'weigth'" in err and "[grip]" in err
     path.write_text("length = [", encoding="utf-8")
     code, _, err = run_calc(["--parts", str(path)], capsys)
     assert code == 2 and "not valid TOML" in err

@@ -12,7 +12,7 @@ import math
 import sys
 import tomllib
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
 
@@ -25,7 +25,7 @@ from daemon.physics.club import (
     weight_and_balance_bench,
 )
 from daemon.physics.correction import CorrectionError, CorrectionNumbers, correction_numbers
-from daemon.physics.moi import PendulumError, moi_about_butt_numbers
+from daemon.physics.moi import STANDARD_GRAVITY_M_S2, PendulumError, moi_about_butt_numbers
 from daemon.physics.predict import (
     DEFAULT_GRIP_CG_IN,
     DEFAULT_HEAD_CG_FROM_END_IN,
@@ -95,6 +95,21 @@ def _length(args: argparse.Namespace, dest: str) -> float | None:
     return _quantity(args, dest, "length")
 
 
+def _need(value: float | None, dest: str) -> float:
+    """A value ``_require`` has already asked for; the error is a backstop."""
+    if value is None:
+        raise CalcInputError(f"--{dest.replace('_', '-')} is needed here")
+    return value
+
+
+def _need_mass(args: argparse.Namespace, dest: str) -> float:
+    return _need(_mass(args, dest), dest)
+
+
+def _need_length(args: argparse.Namespace, dest: str) -> float:
+    return _need(_length(args, dest), dest)
+
+
 def _number(args: argparse.Namespace, dest: str, what: str) -> float | None:
     text = getattr(args, dest)
     if text is None:
@@ -160,42 +175,57 @@ def _uncertainty(args: argparse.Namespace) -> InputUncertainty:
 # --- parts --------------------------------------------------------------------------------------
 
 
-def _parse_extra(text: str, length_in: float, option: str) -> Part:
-    """``MASS@POSITION[:tip|:butt]``; without the suffix a part rides with the nearer end."""
+@dataclass(frozen=True)
+class _ExtraSpec:
+    """An extra mass as given; which end it rides with may still depend on the club's length."""
+
+    name: str
+    mass_g: float
+    position_in: float
+    rides_with: End | None
+    source: str  # the option or file it came from, for messages
+
+    def place(self, length_in: float) -> Part:
+        """The part; without a stated end it rides with the nearer one."""
+        end = self.rides_with
+        if end is None:
+            end = End.TIP if self.position_in > length_in / 2 else End.BUTT
+        try:
+            return Part(self.name, self.mass_g, self.position_in, end)
+        except BuildError as err:
+            raise CalcInputError(f"{self.source}: {err}") from None
+
+
+_EXTRA_FORM = "MASS@POSITION[:tip|:butt] such as 4g@35in or 10g@1in:butt"
+
+
+def _end_or_none(text: str, source: str, form: str) -> End | None:
+    if not text.strip():
+        return None
+    try:
+        return End(text.strip().lower())
+    except ValueError:
+        raise CalcInputError(f"{source}: {text!r} is not tip or butt; expected {form}") from None
+
+
+def _parse_extra(text: str) -> _ExtraSpec:
+    """``--extra MASS@POSITION[:tip|:butt]``."""
     body, _, rides = text.partition(":")
     mass_text, at, pos_text = body.partition("@")
-    form = "MASS@POSITION[:tip|:butt] such as 4g@35in or 10g@1in:butt"
     if not at:
-        raise CalcInputError(f"{option}: {text!r} is not {form}")
+        raise CalcInputError(f"--extra: {text!r} is not {_EXTRA_FORM}")
     try:
         mass_g = parse_quantity(mass_text, kind="mass")
         position_in = parse_quantity(pos_text, kind="length")
     except UnitError as err:
-        raise CalcInputError(f"{option}: {err}; expected {form}") from None
-    if rides and rides.strip().lower() not in ("tip", "butt"):
-        raise CalcInputError(f"{option}: {text!r} ends in {rides!r}; expected {form}")
-    end = (
-        End(rides.strip().lower())
-        if rides
-        else (End.TIP if position_in > length_in / 2 else End.BUTT)
+        raise CalcInputError(f"--extra: {err}; expected {_EXTRA_FORM}") from None
+    return _ExtraSpec(
+        text, mass_g, position_in, _end_or_none(rides, "--extra", _EXTRA_FORM), "--extra"
     )
-    try:
-        return Part(text, mass_g, position_in, end)
-    except BuildError as err:
-        raise CalcInputError(f"{option}: {err}") from None
 
 
-@dataclass
-class _PartsSpec:
-    """Parts gathered from a TOML file and/or options, all in grams and inches."""
-
-    values: dict[str, float] = field(default_factory=dict)
-    extras: list[str] = field(default_factory=list)
-    source: dict[str, str] = field(default_factory=dict)  # key -> where it came from
-
-
+# Parts-file keys and the option each mirrors: option dest -> (table, key, kind).
 _TOML_KEYS: Mapping[str, tuple[str, str, str]] = {
-    # key in _PartsSpec: (table, key, kind)
     "length": ("", "length", "length"),
     "head": ("head", "mass", "mass"),
     "head_cg_from_end": ("head", "cg_from_end", "length"),
@@ -208,54 +238,73 @@ _TOML_KEYS: Mapping[str, tuple[str, str, str]] = {
     "grip": ("grip", "mass", "mass"),
     "grip_cg": ("grip", "cg", "length"),
 }
+_EXTRA_KEYS = {"name", "mass", "at", "rides_with"}
 
 
-def _toml_value(path: Path, where: str, raw: object, kind: str) -> float:
+def _toml_value(source: str, where: str, raw: object, kind: str) -> float:
     if isinstance(raw, bool) or not isinstance(raw, int | float | str):
-        raise CalcInputError(f"--parts {path}: {where} must be a number or a string like '262g'")
+        raise CalcInputError(f"{source}: {where} must be a number or a string like '262g'")
     if isinstance(raw, str):
         try:
             return parse_quantity(raw, kind=kind)
         except UnitError as err:
-            raise CalcInputError(f"--parts {path}: {where}: {err}") from None
+            raise CalcInputError(f"{source}: {where}: {err}") from None
     return float(raw)
 
 
-def _load_parts_file(path: Path) -> tuple[dict[str, float], list[tuple[str, str]]]:
+def _check_keys(source: str, where: str, found: Mapping[str, object], allowed: set[str]) -> None:
+    unknown = sorted(set(found) - allowed)
+    if unknown:
+        raise CalcInputError(
+            f"{source}: unknown key {unknown[0]!r} in {where}; expected one of {sorted(allowed)}"
+        )
+
+
+def _load_parts_file(path: Path) -> tuple[dict[str, float], list[_ExtraSpec]]:
+    source = f"--parts {path}"
     try:
         data = tomllib.loads(path.read_text(encoding="utf-8"))
     except OSError as err:
         raise CalcInputError(f"--parts: cannot read {path}: {err.strerror}") from None
     except tomllib.TOMLDecodeError as err:
-        raise CalcInputError(f"--parts {path}: not valid TOML: {err}") from None
-    known_tables = {"head", "shaft", "grip", "extra"}
-    for key, value in data.items():
-        if isinstance(value, dict | list) and key not in known_tables:
-            raise CalcInputError(f"--parts {path}: unknown table [{key}]; expected {known_tables}")
+        raise CalcInputError(f"{source}: not valid TOML: {err}") from None
+    tables: dict[str, set[str]] = {"": {"extra"}}
+    for table, key, _ in _TOML_KEYS.values():
+        tables.setdefault(table, set()).add(key)
+    _check_keys(source, "the top level", data, tables[""] | (set(tables) - {""}))
     values: dict[str, float] = {}
-    for name, (table, key, kind) in _TOML_KEYS.items():
-        container = data if not table else data.get(table, {})
+    for table, allowed in tables.items():
+        container = data.get(table, {}) if table else data
         if not isinstance(container, dict):
-            raise CalcInputError(f"--parts {path}: [{table}] must be a table")
+            raise CalcInputError(f"{source}: [{table}] must be a table")
+        if table:
+            _check_keys(source, f"[{table}]", container, allowed)
+    for name, (table, key, kind) in _TOML_KEYS.items():
+        container = data.get(table, {}) if table else data
         if key in container:
             where = f"{table}.{key}" if table else key
-            values[name] = _toml_value(path, where, container[key], kind)
-    extras: list[tuple[str, str]] = []
+            values[name] = _toml_value(source, where, container[key], kind)
+    extras: list[_ExtraSpec] = []
     raw_extras = data.get("extra", [])
     if not isinstance(raw_extras, list):
-        raise CalcInputError(f"--parts {path}: extras are [[extra]] tables")
+        raise CalcInputError(f"{source}: extra masses are [[extra]] tables")
     for i, item in enumerate(raw_extras, start=1):
+        where = f"[[extra]] #{i}"
         if not isinstance(item, dict) or "mass" not in item or "at" not in item:
-            raise CalcInputError(f"--parts {path}: [[extra]] #{i} needs mass and at")
-        name = str(item.get("name", f"extra {i}"))
-        mass = _toml_value(path, f"extra #{i} mass", item["mass"], "mass")
-        at = _toml_value(path, f"extra #{i} at", item["at"], "length")
-        rides = str(item.get("rides_with", ""))
-        extras.append((name, f"{mass}g@{at}in" + (f":{rides}" if rides else "")))
+            raise CalcInputError(f"{source}: {where} needs mass and at")
+        _check_keys(source, where, item, _EXTRA_KEYS)
+        extras.append(
+            _ExtraSpec(
+                str(item.get("name", f"extra {i}")),
+                _toml_value(source, f"{where} mass", item["mass"], "mass"),
+                _toml_value(source, f"{where} at", item["at"], "length"),
+                _end_or_none(str(item.get("rides_with", "")), source, "rides_with = tip or butt"),
+                source,
+            )
+        )
     return values, extras
 
 
-_PART_OPTIONS = tuple(_TOML_KEYS)
 # Options that only make sense for a prediction (``length`` also places a correction).
 _PARTS_ONLY = (
     *(k for k in _TOML_KEYS if k not in ("length", "head", "shaft", "grip")),
@@ -266,15 +315,14 @@ _PARTS_ONLY = (
 
 def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
     values: dict[str, float] = {}
-    named_extras: list[tuple[str, str]] = []
+    extras: list[_ExtraSpec] = []
     if args.parts is not None:
-        values, named_extras = _load_parts_file(Path(args.parts))
-    for name in _PART_OPTIONS:
-        kind = _TOML_KEYS[name][2]
+        values, extras = _load_parts_file(Path(args.parts))
+    for name, (_, _, kind) in _TOML_KEYS.items():
         value = _quantity(args, name, kind)
         if value is not None:
             values[name] = value  # options override the file
-    named_extras += [("--extra", text) for text in args.extra or []]
+    extras += [_parse_extra(text) for text in args.extra or []]
     for needed in ("length", "head", "shaft", "shaft_length", "shaft_balance_point", "grip"):
         if needed not in values:
             option = "--" + needed.replace("_", "-")
@@ -282,22 +330,15 @@ def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
                 f"a prediction from parts needs {option} (or its key in the --parts file)"
             )
     length_in = values["length"]
+    parts = tuple(extra.place(length_in) for extra in extras)
     try:
         shaft = Shaft(values["shaft"], values["shaft_length"], values["shaft_balance_point"])
         tip, butt = values.get("tip_trim", 0.0), values.get("butt_trim", 0.0)
         if tip or butt:
             shaft = shaft.trimmed(tip_in=tip, butt_in=butt)
-        extras = []
-        for name, text in named_extras:
-            part = _parse_extra(text, length_in, "--extra" if name == "--extra" else "--parts")
-            extras.append(
-                Part(
-                    name if name != "--extra" else text,
-                    part.mass_g,
-                    part.position_in,
-                    part.rides_with,
-                )
-            )
+    except BuildError as err:
+        raise CalcInputError(f"shaft: {err}") from None
+    try:
         return ClubBuild(
             length_in=length_in,
             head_g=values["head"],
@@ -306,7 +347,7 @@ def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
             head_cg_from_end_in=values.get("head_cg_from_end", DEFAULT_HEAD_CG_FROM_END_IN),
             grip_cg_in=values.get("grip_cg", DEFAULT_GRIP_CG_IN),
             shaft_butt_in=values.get("shaft_butt_at", 0.0),
-            extras=tuple(extras),
+            extras=parts,
         )
     except BuildError as err:
         raise CalcInputError(f"parts: {err}") from None
@@ -357,19 +398,19 @@ def _method(args: argparse.Namespace) -> str:
 
 
 def _bench(
-    args: argparse.Namespace, method: str, u: InputUncertainty
+    args: argparse.Namespace, method: str, u: InputUncertainty, fulcrum: float
 ) -> tuple[BenchInputs, ClubBuild | None, tuple[float, str, float] | None]:
-    fulcrum = args.fulcrum_in
+    """The bench inputs for the chosen method, plus the build and length change for parts."""
     if method == "supports":
         _require(args, "two supports", "support_a", "reading_a", "support_b", "reading_b")
         for stray in _given(args, "weight", "balance_point"):
             raise CalcInputError(f"--{stray.replace('_', '-')} does not go with two supports")
         return (
             two_supports_bench(
-                u.mass(_mass(args, "reading_a") or 0.0),
-                u.position(_length(args, "support_a") or 0.0),
-                u.mass(_mass(args, "reading_b") or 0.0),
-                u.position(_length(args, "support_b") or 0.0),
+                u.mass(_need_mass(args, "reading_a")),
+                u.position(_need_length(args, "support_a")),
+                u.mass(_need_mass(args, "reading_b")),
+                u.position(_need_length(args, "support_b")),
                 fulcrum,
             ),
             None,
@@ -381,9 +422,9 @@ def _bench(
             raise CalcInputError("--balance-point does not go with a lever beam (it is computed)")
         return (
             lever_bench(
-                u.mass(_mass(args, "lever_force") or 0.0),
-                u.position(_length(args, "lever_arm") or 0.0),
-                u.mass(_mass(args, "weight") or 0.0),
+                u.mass(_need_mass(args, "lever_force")),
+                u.position(_need_length(args, "lever_arm")),
+                u.mass(_need_mass(args, "weight")),
                 fulcrum,
             ),
             None,
@@ -395,7 +436,7 @@ def _bench(
         build = _build_from_parts(args)
         change = None
         if args.length_change is not None:
-            delta = _length(args, "length_change") or 0.0
+            delta = _need_length(args, "length_change")
             before = statics_of_parts(build.parts())
             points_before = club_numbers(
                 weight_and_balance_bench(
@@ -415,8 +456,8 @@ def _bench(
     _require(args, "a measured club", "weight", "balance_point")
     return (
         weight_and_balance_bench(
-            u.mass(_mass(args, "weight") or 0.0),
-            UncertainValue(_length(args, "balance_point") or 0.0, u.balance_point_in),
+            u.mass(_need_mass(args, "weight")),
+            UncertainValue(_need_length(args, "balance_point"), u.balance_point_in),
             fulcrum,
         ),
         None,
@@ -426,12 +467,12 @@ def _bench(
 
 def calculate(args: argparse.Namespace) -> CalcResult:
     """Everything ``heft calc`` prints, from parsed arguments; raises CalcInputError."""
-    fulcrum = _length(args, "fulcrum")
-    args.fulcrum_in = FULCRUM_14_IN if fulcrum is None else fulcrum
+    given_fulcrum = _length(args, "fulcrum")
+    fulcrum = FULCRUM_14_IN if given_fulcrum is None else given_fulcrum
     u = _uncertainty(args)
     method = _method(args)
     try:
-        bench, build, change = _bench(args, method, u)
+        bench, build, change = _bench(args, method, u, fulcrum)
         club = club_numbers(bench)
     except StaticsError as err:
         raise CalcInputError(f"{method.replace('_', ' ')}: {err}") from None
@@ -462,24 +503,28 @@ def calculate(args: argparse.Namespace) -> CalcResult:
     moi = None
     if args.period is not None or args.pivot is not None:
         _require(args, "an MOI from a pendulum", "period", "pivot")
-        period = _number(args, "period", "a period in seconds such as 1.52")
-        period_u = _non_negative("--period-u", _number(args, "period_u", "seconds"))
+        period = _need(_number(args, "period", "a period in seconds such as 1.83"), "period")
+        period_u = _non_negative("--period-u", _number(args, "period_u", "a time in seconds"))
         amplitude = _number(args, "amplitude", "an amplitude in degrees") or 0.0
+        if not 0.0 <= amplitude < 90.0:
+            raise CalcInputError(
+                f"--amplitude: {amplitude:g} is not a swing amplitude of 0 to below 90 degrees"
+            )
         gravity = _number(args, "gravity", "an acceleration in m/s^2 such as 9.806")
         try:
             moi = moi_about_butt_numbers(
                 bench,
-                u.position(_length(args, "pivot") or 0.0),
-                UncertainValue(period or 0.0, period_u),
+                u.position(_need_length(args, "pivot")),
+                UncertainValue(period, period_u),
                 amplitude_rad=math.radians(amplitude),
-                **({"gravity_m_s2": gravity} if gravity is not None else {}),
+                gravity_m_s2=STANDARD_GRAVITY_M_S2 if gravity is None else gravity,
             )
-        except (PendulumError, ValueError) as err:
+        except PendulumError as err:
             raise CalcInputError(f"--period/--pivot: {err}") from None
 
     return CalcResult(
         method=method,
-        fulcrum_in=args.fulcrum_in,
+        fulcrum_in=fulcrum,
         club=club,
         bench=bench,
         correction=correction,

@@ -119,6 +119,13 @@ class ClubBuild:
     shaft_butt_in: float = 0.0  # where the shaft's butt end sits (the grip cap's thickness)
     extras: tuple[Part, ...] = ()
 
+    def __post_init__(self) -> None:
+        if not self.length_in > 0:
+            raise BuildError(f"club length must be positive, not {self.length_in:g} in")
+        for name, mass in (("head", self.head_g), ("grip", self.grip_g)):
+            if not mass >= 0:
+                raise BuildError(f"{name}: mass must be >= 0 g, not {mass:g}")
+
     def parts(self) -> tuple[Part, ...]:
         shaft_cg_in = self.shaft_butt_in + self.shaft.balance_point_in
         return (
