@@ -19,6 +19,8 @@ COMMAND_MODULES: tuple[str, ...] = (
     "config",
     "run",
     "replay",
+    "export",
+    "schema",
 )
 
 
