@@ -90,7 +90,7 @@ class Captured:
 class Warning:  # the name in the engine's contract; CaptureWarning is an alias
     """A condition the operator should see; ``active=False`` clears an earlier one."""
 
-    kind: str  # 'will_not_settle' | 'overload' | 'zero_out_of_range'
+    kind: str  # 'will_not_settle' | 'overload' | 'zero_out_of_range' | 'needs_zero'
     t_s: float
     message: str
     channel: str = ""
@@ -271,7 +271,8 @@ class CaptureEngine:
         self._offline_since: float | None = None
         self._captured_total_g: float | None = None
         self._warned_unsettled = False
-        self._zero_warned: set[str] = set()
+        self._zero_warned: set[str] = set()  # zero_out_of_range active
+        self._needs_zero: set[str] = set()  # needs_zero active
         self.dropped_samples = 0  # out-of-order samples ignored
 
     # --- public views ---
@@ -388,9 +389,13 @@ class CaptureEngine:
             if c.offset_g != 0.0:
                 c.offset_g = 0.0
                 out.append(ZeroTracked(c.name, 0.0, t))
-            if c.name in self._zero_warned:
-                self._zero_warned.discard(c.name)
-                out.append(Warning("zero_out_of_range", t, f"{c.name} zero reset", c.name, False))
+            for kind, active in (
+                ("zero_out_of_range", self._zero_warned),
+                ("needs_zero", self._needs_zero),
+            ):
+                if c.name in active:
+                    active.discard(c.name)
+                    out.append(Warning(kind, t, f"{c.name} zero reset", c.name, False))
             c.zero_last_s = None
         return out
 
@@ -511,8 +516,8 @@ class CaptureEngine:
             i = max(first, ch.stable_run_from)
             if i <= j:
                 f = ch.fit(i, j)
-                # the device vouches for its own stable window
-                return _Window(i, j, f, ch.t[i], ch.t[j], ch.t[j] - p.min_stable_s)
+                # the device vouches for its own stable window: it does not limit the overlap
+                return _Window(i, j, f, ch.t[i], ch.t[j], -math.inf)
         if mode == "veto" and last_flags & Flag.MOTION:
             return None
         if mode == "require" and not last_flags & Flag.STABLE:
@@ -606,7 +611,8 @@ class CaptureEngine:
             return []
         if t_s - ch.zero_last_s < _ZERO_TRACK_INTERVAL_S or j < first:
             return []
-        w = self._longest_stable(ch, first, j, p.zero_tracking_window_s, p.zero_tracking_window_s)
+        longest = max(p.zero_tracking_window_s, p.max_window_s)
+        w = self._longest_stable(ch, first, j, p.zero_tracking_window_s, longest)
         if w is None:
             return []
         return self._track_zero(ch, w, t_s)
@@ -629,16 +635,26 @@ class CaptureEngine:
         elapsed = min(t_s - last, p.zero_tracking_window_s)
         ch.zero_last_s = t_s
         error = w.fit.mean - ch.offset_g
-        if abs(error) > p.zero_tracking_band_d * d:
-            return []  # not "at zero": something small is on the supports, or a step
         se = math.sqrt(max(ch.noise_g**2, w.fit.resid_var) / w.fit.n)
-        if abs(error) < 2.0 * se:
-            return []  # not distinguishable from noise: do not let the zero wander
+        band = p.zero_tracking_band_d * d
+        if abs(error) > band:
+            # not "at zero": something small is on the supports, or the zero ran away faster
+            # than tracking may follow; the operator has to zero
+            if abs(error) > band + 2.0 * se and ch.name not in self._needs_zero:
+                self._needs_zero.add(ch.name)
+                msg = f"{ch.name} reads {error:+.3g} g while empty and stable: zero it"
+                return [Warning("needs_zero", t_s, msg, ch.name)]
+            return []
+        out: list[CaptureOutput] = []
+        if ch.name in self._needs_zero:
+            self._needs_zero.discard(ch.name)
+            out.append(Warning("needs_zero", t_s, f"{ch.name} back at zero", ch.name, False))
+        if abs(error) < se:
+            return out  # within the noise of the mean: do not let the zero wander
         step = p.zero_tracking_rate_d_per_s * d * elapsed  # at most 0.5 d/s (OIML R 76-1 4.5.7)
         correction = max(-step, min(step, error))
         limit = p.zero_tracking_limit_fraction * self.params.capacity_for(ch.name)
         new = ch.offset_g + correction
-        out: list[CaptureOutput] = []
         if abs(new) > limit:  # 4 % of capacity (OIML R 76-1 4.5.1)
             new = math.copysign(limit, new)
             if ch.name not in self._zero_warned:
