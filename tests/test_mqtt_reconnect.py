@@ -22,11 +22,13 @@ from tests.sample_records import make_measurement
 
 
 @contextlib.asynccontextmanager
-async def historian(broker: Broker, topic: str) -> AsyncIterator[list[bytes]]:
+async def historian(
+    broker: Broker, topic: str, may_connect: asyncio.Event
+) -> AsyncIterator[list[bytes]]:
     """A plant consumer with a persistent session (MQTT 5 session expiry) that reconnects.
 
-    With a persistent session the broker queues QoS 1 messages for it while it is away, so what
-    it receives does not depend on who reconnects first after the outage.
+    With a persistent session the broker queues QoS 1 messages for it while it is away. It
+    connects only while ``may_connect`` is set, so a test can keep it away on purpose.
     """
     received: list[bytes] = []
 
@@ -34,6 +36,7 @@ async def historian(broker: Broker, topic: str) -> AsyncIterator[list[bytes]]:
         props = Properties(PacketTypes.CONNECT)
         props.SessionExpiryInterval = 3600
         while True:
+            await may_connect.wait()
             try:
                 async with aiomqtt.Client(
                     broker.host,
@@ -65,7 +68,9 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
     data_dir.mkdir()
     data_dir.chmod(0o777)  # mosquitto drops to its own user when started as root
     broker.stop()
-    broker.extra_conf = f"persistence true\npersistence_location {data_dir}/\n"
+    # 'user root': when the tests run as root, mosquitto would otherwise drop to its own user
+    # and could not write into the test's private folder (ignored when not run as root).
+    broker.extra_conf = f"user root\npersistence true\npersistence_location {data_dir}/\n"
     broker.start()
 
     bus = EventBus()
@@ -83,7 +88,9 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
             added.append(m)
 
         try:
-            async with historian(broker, link.topics.measurement) as received:
+            may_connect = asyncio.Event()
+            may_connect.set()
+            async with historian(broker, link.topics.measurement, may_connect) as received:
                 await wait_until(lambda: link.connected, what="link connected")
                 for seq in range(1, 6):
                     capture(seq)
@@ -97,16 +104,24 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
                 # Not acknowledged, so still queued in the database.
                 assert store.outbox_count() == 10
 
+                may_connect.clear()  # keep the consumer away until the station is done
                 broker.start()  # same port
                 for seq in range(16, 21):
                     capture(seq)
+                # Every row acknowledged by the broker: the station's part is done, and what
+                # the consumer gets now comes from its persistent session on the broker.
+                await wait_until(
+                    lambda: store.outbox_count() == 0, timeout_s=30, what="outbox drained"
+                )
+                outage_ids = {str(m.id) for m in added[5:]}
+                assert not outage_ids & {json.loads(p)["id"] for p in received}
+                may_connect.set()
                 want = {str(m.id) for m in added}
                 await wait_until(
                     lambda: {json.loads(p)["id"] for p in received} >= want,
                     timeout_s=30,
                     what="all 20 measurements after the outage",
                 )
-                await wait_until(lambda: store.outbox_count() == 0, what="outbox drained")
         finally:
             task.cancel()
             with contextlib.suppress(asyncio.CancelledError):
