@@ -228,6 +228,10 @@ def _fmt_s(x: float) -> str:
     return "miss" if math.isinf(x) else f"{x:.2f}"
 
 
+def _ratio(x: float, y: float) -> str:
+    return "-" if math.isinf(y) else f"{x / y:.2f}"
+
+
 def format_table(r: BenchResult) -> str:
     a, b, c = r.rows["naive"], r.rows["engine"], r.rows["limit"]
     lines = [
@@ -276,7 +280,7 @@ def format_table(r: BenchResult) -> str:
             f"| {name} | {_fmt_s(m['naive_median_s'])} | {_fmt_s(m['engine_median_s'])} "
             f"| {_fmt_s(m['limit_median_s'])} "
             f"| {m['engine_median_s'] / m['limit_median_s']:.2f} "
-            f"| {m['engine_median_s'] / m['naive_median_s']:.2f} "
+            f"| {_ratio(m['engine_median_s'], m['naive_median_s'])} "
             f"| {int(m['naive_misses'])} | {int(m['engine_misses'])} "
             f"| {m['engine_rms_points']:.3f} |"
         )
