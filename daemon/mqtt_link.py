@@ -209,7 +209,7 @@ class MqttLink:
         wait = state.next_action.sleep if state.next_action else 0.0
         err = state.outcome.exception() if state.outcome else None
         log.warning(
-            "MQTT %s:%s unreachable (%s); attempt %d, retrying in %.1f s",
+            "MQTT %s:%s: cannot connect (%s); attempt %d, retrying in %.1f s",
             self.settings.host,
             self.settings.port,
             err,

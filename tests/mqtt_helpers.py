@@ -8,6 +8,7 @@ import time
 import uuid
 from collections.abc import AsyncIterator, Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import aiomqtt
 
@@ -62,14 +63,17 @@ async def collecting(
     *filters: str,
     identifier: str | None = None,
     protocol: aiomqtt.ProtocolVersion = aiomqtt.ProtocolVersion.V5,
+    port: int | None = None,
+    **client_options: Any,
 ) -> AsyncIterator[tuple[aiomqtt.Client, Collector]]:
     """A subscribed client whose messages land in a Collector while the block runs."""
     collector = Collector()
     async with aiomqtt.Client(
         broker.host,
-        broker.port,
+        port or broker.port,
         identifier=identifier or f"collector-{uuid.uuid4().hex[:8]}",
         protocol=protocol,
+        **client_options,
     ) as client:
         for f in filters:
             await client.subscribe(f, qos=1)
