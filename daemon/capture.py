@@ -518,7 +518,7 @@ class CaptureEngine:
                 f = ch.fit(i, j)
                 # the device vouches for its own stable window: it does not limit the overlap
                 return _Window(i, j, f, ch.t[i], ch.t[j], -math.inf)
-        if mode == "veto" and last_flags & Flag.MOTION:
+        if mode in ("veto", "trust") and last_flags & Flag.MOTION:
             return None
         if mode == "require" and not last_flags & Flag.STABLE:
             return None

@@ -140,7 +140,7 @@ class CaptureParams(BaseModel):
         default="veto",
         description="a device's own STABLE/MOTION flags: ignore; veto (MOTION on the latest "
         "reading blocks a capture); require (STABLE needed as well as the engine's test); "
-        "trust (STABLE alone is enough)",
+        "trust (STABLE alone is enough, MOTION blocks)",
     )
 
     # Timeouts.

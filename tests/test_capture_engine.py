@@ -11,6 +11,8 @@ import random
 from collections.abc import Callable, Iterable
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from daemon.capture import (
     Captured,
@@ -499,3 +501,66 @@ def test_long_running_stream_stays_precise() -> None:
     caps = captures(outs)
     assert len(caps) == 1
     assert caps[0].windows["beam/0"].mean_g == pytest.approx(437.25, abs=1e-6)
+
+
+def test_trusted_devices_out_of_phase_still_capture() -> None:
+    # two balances that each vouch for their own stability, sampled 37 ms apart
+    params = CaptureParams.preset("precision_balance", device_flags="trust")
+    e = CaptureEngine(TWO, params)
+    outs = feed(
+        e,
+        {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)},
+        RATES_10,
+        4.0,
+        noise_g=0.0,
+        offsets_s={"beam/1": 0.037},
+        flags=lambda ch, t, v: Flag.STABLE if t >= 2.0 else Flag.MOTION,
+    )
+    caps = captures(outs)
+    assert len(caps) == 1 and caps[0].t_s == pytest.approx(2.037, abs=0.11)
+
+
+def test_back_from_offline_with_the_captured_club_holds() -> None:
+    e = engine_10hz(channel_timeout_s=2.0)
+    sigs = {"beam/0": step(1.0, 150.0), "beam/1": step(1.0, 250.0)}
+    outs = feed(e, sigs, RATES_10, 3.0)
+    assert len(captures(outs)) == 1
+    e.tick(5.5)
+    assert e.state is CaptureState.OFFLINE
+    outs = feed(e, sigs, RATES_10, 9.0, t_start_s=6.0)
+    assert captures(outs) == []
+    assert e.state is CaptureState.HOLDING
+    assert e.rearm() == [StateChanged(CaptureState.SETTLING, pytest.approx(8.9), "re-armed")]
+
+
+@settings(max_examples=25, deadline=None)
+@given(
+    a_g=st.floats(30.0, 600.0),
+    b_g=st.floats(30.0, 600.0),
+    noise_d=st.floats(0.0, 2.0),
+    rate=st.sampled_from([10.0, 80.0]),
+    seed=st.integers(0, 10_000),
+)
+def test_any_clean_placement_is_captured_once_within_its_noise(
+    a_g: float, b_g: float, noise_d: float, rate: float, seed: int
+) -> None:
+    noise_g = noise_d * D_G
+    params = CaptureParams.preset("hx711_10hz", noise_g=max(noise_g, 0.01))
+    e = CaptureEngine(TWO, params)
+    outs = feed(
+        e,
+        {"beam/0": step(2.0, a_g, 9.0), "beam/1": step(2.0, b_g, 9.0)},
+        {"beam/0": rate, "beam/1": rate},
+        11.0,
+        noise_g=noise_g,
+        seed=seed,
+        round_to_d=False,
+    )
+    caps = captures(outs)
+    assert len(caps) == 1
+    for ch, true_g in (("beam/0", a_g), ("beam/1", b_g)):
+        w = caps[0].windows[ch]
+        # the window mean is within 5 standard errors of the truth (plus a little for the
+        # zero tracked from noise before the placement)
+        assert abs(w.mean_g - true_g) <= 5 * noise_g / math.sqrt(w.n) + 0.5 * D_G
+    assert e.state is CaptureState.EMPTY
