@@ -22,7 +22,7 @@ the window is stable when
   ``motion_confidence`` against the noise learned while empty): oscillation, bumps and creep show
   up as excess scatter,
 * the standard error of the window's mean is at most ``resolution_d`` d, and
-* the window covers at least ``min_stable_s`` (0.4 s, OIML R 76-1 4.4.2).
+* its first and last samples lie at least ``min_stable_s`` apart (0.4 s, OIML R 76-1 4.4.2).
 
 The engine tries windows from the longest (``max_window_s``) to the shortest and keeps the longest
 that passes, so a quiet channel is captured as soon as 0.4 s of it is stable, and a noisy one
@@ -172,7 +172,6 @@ class _Channel:
         self.stable_run_from = 0  # first of the current run of device-STABLE samples
         self.last_t: float | None = None
         self.latest_net_g = 0.0  # what the load check sees
-        self.dt_s = 0.0  # typical sample interval
         self.overloaded = False
         self.offset_g = 0.0
         self.zero_last_s: float | None = None
@@ -312,12 +311,8 @@ class CaptureEngine:
             self._t_first = t_s
         out: list[CaptureOutput] = []
         p = self.params
-        if ch.last_t is not None:
-            interval = t_s - ch.last_t
-            if interval > p.max_gap_s:
-                ch.restart_windows()  # no window spans a gap (or a disconnect)
-            elif interval > 0:
-                ch.dt_s = interval if ch.dt_s == 0 else 0.9 * ch.dt_s + 0.1 * interval
+        if ch.last_t is not None and t_s - ch.last_t > p.max_gap_s:
+            ch.restart_windows()  # no window spans a gap (or a disconnect)
         ch.last_t = t_s
 
         if not math.isfinite(value_g):
