@@ -15,6 +15,8 @@ from typing import cast
 
 # Order here is the order in ``heft --help``.
 COMMAND_MODULES: tuple[str, ...] = (
+    "demo",
+    "dash",
     "calc",
     "config",
     "run",

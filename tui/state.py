@@ -82,7 +82,7 @@ class DashboardState:
 
     def apply(self, event: Event) -> None:
         """Fold one event in; events of other stations only register the station's name."""
-        station = _station_of(event)
+        station = station_of(event)
         if station not in self.stations:
             self.stations.append(station)
             self.rev.stations += 1
@@ -185,7 +185,8 @@ class DashboardState:
         return [m for m in self.measurements if m.job == job]
 
 
-def _station_of(event: Event) -> str:
+def station_of(event: Event) -> str:
+    """The station an event came from."""
     if isinstance(event, MeasurementCaptured):
         return event.measurement.station
     if isinstance(event, AlarmChanged):

@@ -1,0 +1,86 @@
+"""``heft demo`` end to end: simulated beam on a pty, the real service, the dashboard.
+
+One test drives the dashboard in-process with the pilot (capture shows, q quits, everything is
+stopped and removed); one runs the real command line headless in a subprocess.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+from textual.widgets import Static
+
+from daemon.commands.demo import STATION, demo_bench, scenario
+from daemon.measurement import Verdict
+from tui.app import HeftDashboard
+from tui.readout import VerdictBanner
+from tui.source import InProcessSource
+
+
+def test_scenario_has_out_of_spec_clubs_and_bumps() -> None:
+    plan = scenario(30, seed=2417)
+    assert [c.club for c in plan[:8]] == ["4i", "5i", "6i", "7i", "8i", "9i", "PW", "4i"]
+    assert sum(1 for c in plan if c.placement.bumps) == 6  # every 5th of 30
+    assert plan[0].club_id == "LK2417-4i-01" and plan[7].club_id == "LK2417-4i-02"
+    for a, b in zip(plan, plan[1:], strict=False):
+        assert b.placement.t_on_s > a.placement.t_off_s  # one club at a time
+
+
+async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
+    with demo_bench(clubs=4) as runner:
+        assert runner.loop is not None and runner.service.store is not None
+        workdir = Path(runner.config.storage.path).parent
+        source = InProcessSource(
+            runner.bus, runner.handle_command, runner.service.store, service_loop=runner.loop
+        )
+        app = HeftDashboard(source, station=STATION)
+        async with app.run_test(size=(120, 40)) as pilot:
+            for _ in range(600):  # up to 30 s; the first club lands about 2 s in
+                if app.state.measurements and app.refreshes > 0:
+                    break
+                await pilot.pause(0.05)
+            assert app.state.measurements, "no capture reached the dashboard"
+            first = app.state.measurements[0]
+            assert first.club == "4i" and first.club_id == "LK2417-4i-01"
+            assert first.verdict in (Verdict.PASS, Verdict.NEAR_LIMIT, Verdict.FAIL)
+            assert len(app.state.channels) == 2  # both supports report live values
+            await pilot.pause(0.3)
+            banner = str(app.query_one(VerdictBanner).render())
+            assert "#1 4i" in banner
+            assert "4i" in str(app.query_one("#club-line", Static).render())
+            await pilot.press("q")
+        assert app.ui_errors == 0
+        assert workdir.exists()
+    assert runner.error is None
+    assert not runner._thread.is_alive()
+    assert not workdir.exists()
+
+
+def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
+    done = subprocess.run(
+        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "12"],
+        capture_output=True,
+        text=True,
+        timeout=90,
+    )
+    assert done.returncode == 0, done.stderr
+    summary = done.stdout.splitlines()[0]
+    assert "clubs captured" in summary and "ui errors 0" in summary
+    captured = int(summary.split(":")[1].split()[0])
+    assert captured >= 1
+    workdir = Path(summary.rsplit("removed:", 1)[1].strip())
+    assert not workdir.exists()
+    assert "LK2417-4i-01" in done.stdout
+
+
+def test_bad_demo_option_is_refused() -> None:
+    done = subprocess.run(
+        [sys.executable, "-m", "daemon", "demo", "--broker", "http://x"],
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
+    assert done.returncode == 2
+    assert "--broker" in done.stderr and "mqtt://" in done.stderr
