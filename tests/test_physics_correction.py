@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from hypothesis import assume, given
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from daemon.physics.club import weight_and_balance_bench
@@ -26,6 +26,7 @@ def _points(w: float, bp: float) -> float:
     return points_from_moment_g_in(moment_about_g_in(w, bp))
 
 
+@settings(deadline=None)  # no timing in unit tests: the CI machine is shared
 @given(
     st.floats(250.0, 550.0),
     st.floats(24.0, 36.0),

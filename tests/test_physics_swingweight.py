@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 
 import pytest
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from daemon.physics.swingweight import (
@@ -142,6 +142,7 @@ def test_twelve_inch_scale_needs_the_weight() -> None:
     assert moment_12in_from_14in_oz_in(m14, 330.0) != pytest.approx(m12)
 
 
+@settings(deadline=None)  # no timing in unit tests: the CI machine is shared
 @given(st.floats(min_value=0.0, max_value=70.0, allow_nan=False), st.integers(0, 3))
 def test_label_points_round_trip(points: float, decimals: int) -> None:
     label = label_from_points(points, decimals)
@@ -150,6 +151,7 @@ def test_label_points_round_trip(points: float, decimals: int) -> None:
     assert label_from_points(back, decimals) == label
 
 
+@settings(deadline=None)  # no timing in unit tests: the CI machine is shared
 @given(
     st.sampled_from("ABCDEFG"),
     st.integers(0, 99),
@@ -162,6 +164,7 @@ def test_parsed_labels_print_back(letter: str, tenths: int, sep: str, lower: boo
     assert label_from_points(points) == f"{letter}{tenths / 10:.1f}"
 
 
+@settings(deadline=None)  # no timing in unit tests: the CI machine is shared
 @given(st.floats(min_value=-50.0, max_value=120.0, allow_nan=False))
 def test_points_moment_inverse(points: float) -> None:
     assert points_from_moment_g_in(moment_g_in_from_points(points)) == pytest.approx(
