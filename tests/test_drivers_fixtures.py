@@ -75,7 +75,8 @@ def test_poll_balance_continuous_recording() -> None:
         (-332.41, "g", S),
     ])
     assert replies(driver) == [("tare", True, 332.41)]
-    assert (driver.stats.frame_errors, driver.stats.noise_bytes, driver.stats.readings) == (0, 0, 10)
+    s = driver.stats
+    assert (s.frame_errors, s.noise_bytes, s.readings) == (0, 0, 10)
 
 
 def test_poll_balance_polled_recording() -> None:
