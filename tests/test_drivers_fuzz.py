@@ -1,0 +1,144 @@
+"""Property tests: bad bytes never raise out of a driver, and a corrupt beam frame never reads.
+
+Example budgets are kept small so the whole file runs in a few seconds.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from drivers.base import Driver
+from drivers.firmware.heft_beam import framing  # the board's own framing (runs on CPython)
+from drivers.protocols.beam import BeamDriver
+from drivers.reading import DriverOutput, Reading
+from drivers.recording import read_recording
+from drivers.registry import create_driver
+
+FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"
+
+DRIVERS: list[tuple[str, dict[str, Any]]] = [
+    ("poll_balance", {}),
+    ("poll_balance", {"mode": "continuous"}),
+    ("stream_balance", {}),
+    ("regex_line",
+     {"pattern": r"(?P<stable>[SN])\s+(?P<value>[+-]?\s*[0-9.]+)\s*(?P<unit>[a-z]+)"}),
+    ("beam", {}),
+    ("scanner", {"pattern": "LC-[0-9]{5}"}),
+]
+FAST = settings(max_examples=150, deadline=None,
+                suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+
+def essence(outputs: list[DriverOutput]) -> list[tuple[object, ...]]:
+    return [
+        (o.channel, o.value, o.device_unit, o.flags, o.raw, o.seq, o.device_time_s)
+        if isinstance(o, Reading) else (repr(o),)
+        for o in outputs
+    ]
+
+
+def fresh(name: str, options: dict[str, Any]) -> Driver:
+    return create_driver(name, "fuzz-1", options)
+
+
+# Bytes that look like frames make the fuzzing reach the parsers, not just the framing.
+frame_alphabet = st.sampled_from(list(b"SDIZT+-,.0123456789 gkozlb#$*!ABCDEF\r\n\x00\xff"))
+framey_bytes = st.lists(frame_alphabet, max_size=400).map(bytes)
+any_bytes = st.binary(max_size=400)
+
+
+@pytest.mark.parametrize(("name", "options"), DRIVERS, ids=[f"{n}-{i}" for i, (n, _) in
+                                                              enumerate(DRIVERS)])
+@FAST
+@given(chunks=st.lists(st.one_of(any_bytes, framey_bytes), max_size=8))
+def test_random_bytes_never_raise(name: str, options: dict[str, Any], chunks: list[bytes]) -> None:
+    driver = fresh(name, options)
+    readings = 0
+    for i, chunk in enumerate(chunks):
+        out = driver.feed(chunk, float(i))
+        readings += sum(isinstance(o, Reading) for o in out)
+        for o in out:
+            if isinstance(o, Reading):
+                assert o.raw in b"".join(chunks)
+    assert driver.stats.readings == readings
+    assert driver.stats.bytes_in == sum(map(len, chunks))
+
+
+FIXTURE_FILES = sorted(
+    str(p.relative_to(FIXTURES)) for folder in ("recordings", "malformed")
+    for p in (FIXTURES / folder).glob("*.jsonl")
+    if read_recording(p).header.driver in {n for n, _ in DRIVERS}
+)
+
+
+@pytest.mark.parametrize("name", FIXTURE_FILES)
+@settings(max_examples=30, deadline=None)
+@given(cuts=st.lists(st.integers(min_value=0, max_value=10_000), max_size=12))
+def test_chunking_does_not_change_outputs(name: str, cuts: list[int]) -> None:
+    """However the adapter splits the bytes, the same frames come out."""
+    rec = read_recording(FIXTURES / name)
+    data = b"".join(c.data for c in rec.rx)
+    h = rec.header
+    whole = create_driver(h.driver, h.device, h.options).feed(data, 1.0)
+    split = create_driver(h.driver, h.device, h.options)
+    points = sorted({c % (len(data) + 1) for c in cuts})
+    pieces = [data[a:b] for a, b in zip([0, *points], [*points, len(data)], strict=True)]
+    out: list[DriverOutput] = []
+    for piece in pieces:
+        out += split.feed(piece, 1.0)
+    assert essence(out) == essence(whole)
+
+
+counts_24 = st.integers(min_value=-(2**23), max_value=2**23 - 1)
+
+
+@st.composite
+def mutated_sample(draw: st.DrawFn) -> tuple[bytes, bytes]:
+    """A valid sample line and a single-edit mutation of it (replace, insert, delete, cut)."""
+    seq = draw(st.integers(0, 65535))
+    t_ms = draw(st.integers(0, 2**32 - 1))
+    counts = draw(st.lists(counts_24, min_size=1, max_size=2))
+    good = framing.sample_line(seq, t_ms, counts)
+    body = good[:-1]  # without the LF
+    i = draw(st.integers(0, len(body) - 1))
+    kind = draw(st.sampled_from(["replace", "insert", "delete", "cut"]))
+    if kind == "replace":
+        b = draw(st.integers(0, 255).filter(lambda v: v != body[i]))
+        bad = body[:i] + bytes([b]) + body[i + 1:]
+    elif kind == "insert":
+        bad = body[:i] + bytes([draw(st.integers(0, 255))]) + body[i:]
+    elif kind == "delete":
+        bad = body[:i] + body[i + 1:]
+    else:
+        bad = body[:i]
+    return good, bad + b"\n"
+
+
+@FAST
+@given(case=mutated_sample())
+def test_mutated_beam_frame_never_becomes_a_reading(case: tuple[bytes, bytes]) -> None:
+    good, bad = case
+    reference = BeamDriver("fuzz-1").feed(good, 2.0)
+    driver = BeamDriver("fuzz-1")
+    out = driver.feed(bad, 2.0)
+    # A single edit always changes the XOR, the hex digits or the framing: nothing may come out.
+    assert out == []
+    if bad.strip():  # (a cut at 0 leaves an empty line: nothing to count)
+        assert driver.stats.frame_errors + (driver.stats.noise_bytes > 0) >= 1
+    # ... and the very next good frame is read exactly: the driver has resynchronised.
+    assert essence(driver.feed(good, 2.0)) == essence(reference)
+
+
+@FAST
+@given(case=mutated_sample(), junk=any_bytes)
+def test_beam_resyncs_after_noise(case: tuple[bytes, bytes], junk: bytes) -> None:
+    good, _ = case
+    reference = BeamDriver("fuzz-1").feed(good, 3.0)
+    driver = BeamDriver("fuzz-1")
+    driver.feed(junk + b"\n", 3.0)
+    assert essence(driver.feed(good, 3.0)) == essence(reference)
