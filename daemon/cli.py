@@ -18,6 +18,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "demo",
     "dash",
     "calc",
+    "simulate",
     "config",
     "run",
     "replay",

@@ -7,9 +7,10 @@ the display shows.
 
 from __future__ import annotations
 
-import functools
-import operator
 from decimal import Decimal
+
+# One implementation of the XOR (NMEA 0183) rule, shared with the host-side parser.
+from drivers.protocols.beam import checksum as beam_checksum
 
 CRLF = b"\r\n"
 LF = b"\n"
@@ -110,11 +111,6 @@ def template_line(
 # --- e. heft beam protocol v1 ---------------------------------------------------------------
 
 BEAM_PROTOCOL = "heft-beam/1"
-
-
-def beam_checksum(body: bytes) -> int:
-    """XOR of every byte (the NMEA 0183 rule), ``body`` being what lies between lead and ``*``."""
-    return functools.reduce(operator.xor, body, 0)
 
 
 def beam_line(lead: str, body: str) -> bytes:

@@ -1,0 +1,234 @@
+"""``heft simulate PROTOCOL``: a simulated device on a pseudo-terminal, for testing a set-up.
+
+A club is placed on the simulated bench and lifted again every ``--cycle`` seconds; the device
+speaks its protocol on a pty whose path is printed, and keeps serving until Ctrl-C.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import json
+import random
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+from daemon.units import UnitError, parse_quantity
+from drivers.sim.definitions import (
+    PROTOCOLS,
+    AnyDefinition,
+    BeamDef,
+    DefinitionError,
+    ScannerDef,
+    builtin_definition,
+    load_definition,
+)
+from drivers.sim.devices import make_device
+from drivers.sim.physics import (
+    BenchTimeline,
+    Club,
+    Geometry,
+    Placement,
+    cycle_placements,
+    make_geometry,
+)
+from drivers.sim.pty_server import PtyDevice
+
+_DEFAULT_GEOMETRY = {"beam": "two_support"}  # everything else: one scale
+_LIST_WIDTH = 16
+
+
+def _mass(text: str) -> float:
+    try:
+        value = parse_quantity(text, kind="mass")
+    except UnitError as err:
+        raise argparse.ArgumentTypeError(str(err)) from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive mass")
+    return value
+
+
+def _length(text: str) -> float:
+    try:
+        value = parse_quantity(text, kind="length")
+    except UnitError as err:
+        raise argparse.ArgumentTypeError(str(err)) from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive length")
+    return value
+
+
+def _positive(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be > 0")
+    return value
+
+
+def _supports(text: str) -> tuple[float, float]:
+    parts = text.split(",")
+    if len(parts) != 2:
+        raise argparse.ArgumentTypeError(f"{text!r} is not two positions such as 4in,36in")
+    a, b = (_length(p.strip()) for p in parts)
+    if not b > a:
+        raise argparse.ArgumentTypeError(f"{text!r}: the second support must be beyond the first")
+    return a, b
+
+
+def register(subparsers: Any) -> None:
+    p: argparse.ArgumentParser = subparsers.add_parser(
+        "simulate",
+        help="run a simulated scale, beam or scanner on a pseudo-terminal",
+        description=(
+            "Run a simulated device on a pseudo-terminal and print its port path. A club is "
+            "placed and lifted every --cycle seconds. Stop with Ctrl-C."
+        ),
+    )
+    p.add_argument(
+        "protocol",
+        nargs="?",
+        metavar="PROTOCOL",
+        help=f"one of: {', '.join(PROTOCOLS)} (see --list)",
+    )
+    p.add_argument("--list", action="store_true", help="list the protocols and exit")
+    p.add_argument("--definition", type=Path, help="device definition JSON (default: shipped)")
+    p.add_argument("--link", type=Path, help="stable symlink to the port, e.g. /tmp/heft/beam0")
+    p.add_argument("--seed", type=int, default=0, help="noise and bump seed (default 0)")
+    p.add_argument("--rate", type=_positive, metavar="HZ", help="samples per second")
+    p.add_argument("--club-weight", type=_mass, default=390.0, metavar="MASS", help="e.g. 390g")
+    p.add_argument(
+        "--balance-point", type=_length, default=29.5, metavar="LENGTH", help="e.g. 29.5in"
+    )
+    p.add_argument("--club-id", default="LCW-0001", help="id the scanner reports (numbered on)")
+    p.add_argument("--geometry", choices=("two_support", "lever", "single"))
+    p.add_argument(
+        "--supports", type=_supports, default=(4.0, 36.0), metavar="A,B", help="default 4in,36in"
+    )
+    p.add_argument("--lever-arm", type=_length, default=5.0, metavar="LENGTH", help="default 5in")
+    p.add_argument(
+        "--channel", type=int, default=0, help="bench channel a one-channel scale sits under"
+    )
+    p.add_argument("--cycle", type=_positive, default=6.0, metavar="SECONDS", help="default 6")
+    p.add_argument("--bump-every", type=int, default=0, metavar="N", help="bump every Nth club")
+    p.add_argument("--duration", type=_positive, metavar="SECONDS", help="stop after this long")
+    p.set_defaults(func=run, _parser=p)
+
+
+def list_protocols() -> str:
+    lines = []
+    for name in PROTOCOLS:
+        try:
+            desc = builtin_definition(name).description
+        except DefinitionError as err:
+            desc = f"(definition unusable: {err})"
+        lines.append(f"{name:<{_LIST_WIDTH}}{desc}")
+    return "\n".join(lines)
+
+
+def _definition(args: argparse.Namespace, geometry_kind: str) -> AnyDefinition:
+    if args.definition is not None:
+        return load_definition(args.definition)
+    name = str(args.protocol)
+    if name == "beam" and geometry_kind != "two_support":
+        name = "beam_1ch"
+    return builtin_definition(name)
+
+
+def _geometry(args: argparse.Namespace, kind: str) -> Geometry:
+    if kind == "two_support":
+        a, b = args.supports
+        return make_geometry("two_support", support_a_in=a, support_b_in=b)
+    if kind == "lever":
+        return make_geometry("lever", lever_arm_in=args.lever_arm)
+    return make_geometry("single")
+
+
+def _fit_definition(definition: AnyDefinition, args: argparse.Namespace) -> AnyDefinition:
+    """Apply --rate and --channel to the definition (validated like the file itself)."""
+    changes: dict[str, Any] = {}
+    if args.rate is not None:
+        if isinstance(definition, BeamDef) and round(args.rate) not in definition.allowed_rates_hz:
+            rates = " or ".join(str(r) for r in definition.allowed_rates_hz)
+            raise DefinitionError(f"--rate: a beam samples at {rates} per second")
+        changes["rate_hz"] = args.rate
+    if args.channel and not isinstance(definition, BeamDef | ScannerDef):
+        changes["bench_channel"] = args.channel
+    return definition.model_copy(update=changes) if changes else definition
+
+
+def _script(args: argparse.Namespace) -> list[Placement]:
+    count = int(args.duration / args.cycle) + 2 if args.duration else 100_000
+    club = Club(args.club_weight, args.balance_point)
+    placements = cycle_placements(
+        club,
+        period_s=args.cycle,
+        on_s=0.6 * args.cycle,
+        count=count,
+        start_s=min(2.0, 0.3 * args.cycle),
+        bump_every=args.bump_every,
+        bump_g=0.05 * args.club_weight,
+        rng=random.Random(args.seed),
+    )
+    prefix, _, number = str(args.club_id).rpartition("-")
+    if number.isdigit():
+        ids = [f"{prefix}-{int(number) + k:0{len(number)}d}" for k in range(count)]
+    else:
+        ids = [f"{args.club_id}-{k + 1}" for k in range(count)]
+    return [
+        dataclasses.replace(p, club=dataclasses.replace(club, club_id=cid))
+        for p, cid in zip(placements, ids, strict=True)
+    ]
+
+
+def run(args: argparse.Namespace) -> int:
+    parser: argparse.ArgumentParser = args._parser
+    if args.list:
+        print(list_protocols())
+        return 0
+    if args.protocol is None and args.definition is None:
+        parser.error("PROTOCOL is required (or --definition FILE, or --list)")
+    if args.protocol is not None and args.protocol not in PROTOCOLS:
+        parser.error(f"PROTOCOL {args.protocol!r} unknown; expected one of {', '.join(PROTOCOLS)}")
+    if args.link is not None and not args.link.parent.is_dir():
+        parser.error(f"--link: folder {args.link.parent} does not exist")
+    if args.bump_every < 0:
+        parser.error("--bump-every: expected 0 (never) or a positive count")
+    proto = args.protocol or "beam"
+    kind = args.geometry or _DEFAULT_GEOMETRY.get(proto, "single")
+    try:
+        definition = _fit_definition(_definition(args, kind), args)
+        geometry = _geometry(args, kind)
+        timeline = BenchTimeline(geometry, _script(args))
+        device = make_device(definition, timeline, seed=args.seed)
+    except (DefinitionError, ValueError) as err:
+        print(f"heft simulate: {err}", file=sys.stderr)
+        return 2
+    with PtyDevice(device, link=args.link) as served:
+        print(f"{definition.protocol} device {definition.name!r} on {served.port}")
+        if served.link is not None:
+            print(f"link {served.link} -> {served.port}")
+        print(f"driver config: {json.dumps(_config_hint(definition, served.path))}")
+        print("serving; Ctrl-C to stop", flush=True)
+        deadline = time.monotonic() + args.duration if args.duration else None
+        try:
+            while deadline is None or time.monotonic() < deadline:
+                time.sleep(0.2)
+                if served.error is not None:
+                    print(f"heft simulate: server stopped: {served.error}", file=sys.stderr)
+                    return 1
+        except KeyboardInterrupt:
+            pass
+    return 0
+
+
+def _config_hint(definition: AnyDefinition, port: str) -> dict[str, Any]:
+    hint: dict[str, Any] = {"driver": definition.protocol, "port": port}
+    options = getattr(definition, "driver_options", None)
+    if options:
+        hint["options"] = options
+    return hint
