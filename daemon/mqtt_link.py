@@ -67,6 +67,8 @@ log = logging.getLogger(__name__)
 CommandHandler = Callable[[Command], Awaitable[Reply]]
 MAX_COMMAND_BYTES = 16_384  # a command is a small JSON object; anything bigger is refused
 OUTBOX_BATCH = 100
+OPERATION_TIMEOUT_S = 10.0  # no healthy broker takes this long to acknowledge
+STABLE_SESSION_S = 10.0  # a session shorter than this counts as a failed attempt (backoff)
 K = TypeVar("K")
 V = TypeVar("V")
 
@@ -183,8 +185,11 @@ class MqttLink:
         sub = self._bus.subscribe()
         consumer = asyncio.create_task(self._consume_events(sub), name="mqtt-events")
         try:
-            for alarm in await asyncio.to_thread(self._store.active_alarms, self.station):
-                self._alarms.setdefault(alarm.key, alarm)
+            try:
+                for alarm in await asyncio.to_thread(self._store.active_alarms, self.station):
+                    self._alarms.setdefault(alarm.key, alarm)
+            except StorageError as err:  # the bus still brings every change from now on
+                log.error("cannot restore active alarms: %s", err)
             while True:
                 retrying = AsyncRetrying(
                     retry=retry_if_exception_type(aiomqtt.MqttError),
@@ -209,7 +214,7 @@ class MqttLink:
         wait = state.next_action.sleep if state.next_action else 0.0
         err = state.outcome.exception() if state.outcome else None
         log.warning(
-            "MQTT %s:%s: cannot connect (%s); attempt %d, retrying in %.1f s",
+            "MQTT %s:%s: %s; attempt %d, retrying in %.1f s",
             self.settings.host,
             self.settings.port,
             err,
@@ -243,16 +248,24 @@ class MqttLink:
             keepalive=s.keepalive_s,
             tls_params=tls_params,
             tls_insecure=tls_insecure,
-            timeout=max(10.0, float(s.keepalive_s)),
+            # Bounds every publish/subscribe; also ends a session wedged by a socket closed
+            # under the client mid-handshake (seen when two clients share one id).
+            timeout=OPERATION_TIMEOUT_S,
         )
 
     async def _connect_and_serve(self) -> None:
-        """One connection. Raises MqttError if it cannot connect; returns when it drops."""
+        """One connection. Returns when a session that had been up a while drops.
+
+        Raises MqttError (so the caller backs off) when the connection fails, when a session
+        drops soon after it started (a broker that accepts and then disconnects, or another
+        client with the same id, must not cause a tight reconnect loop), and when the session
+        ends on an unexpected error, which is logged: the link never dies of one.
+        """
         client = self.make_client()
-        session_started = False
+        started_at: float | None = None
         try:
             async with client:
-                session_started = True
+                started_at = self._clock()
                 log.info(
                     "MQTT connected to %s:%s as %s",
                     self.settings.host,
@@ -261,9 +274,17 @@ class MqttLink:
                 )
                 await self._serve(client)
         except aiomqtt.MqttError as err:
-            if not session_started:
+            if started_at is None:
                 raise
+            lasted_s = self._clock() - started_at
+            if lasted_s < STABLE_SESSION_S:
+                raise aiomqtt.MqttError(
+                    f"connection dropped after {lasted_s:.1f} s: {err}"
+                ) from err
             log.warning("MQTT connection lost: %s", err)
+        except Exception as err:
+            log.exception("MQTT link error; reconnecting")
+            raise aiomqtt.MqttError(f"link error: {err!r}") from err
         finally:
             self._connected.clear()
 
@@ -274,9 +295,13 @@ class MqttLink:
         if self.settings.homeassistant_discovery:
             await client.subscribe(f"{self.settings.homeassistant_prefix}/status", qos=1)
             await self._publish_discovery(client)
-        last = await asyncio.to_thread(self._store.recent_measurements, 1)
+        try:
+            last = await asyncio.to_thread(self._store.recent_measurements, 1)
+        except StorageError as err:
+            log.error("cannot read the last measurement: %s", err)
+            last = []
         if last:
-            await client.publish(t.measurement_last, last[0].model_dump_json(), qos=1, retain=True)
+            await client.publish(t.measurement_last, _json(last[0]), qos=1, retain=True)
         self._mark_all_dirty()
         self._connected.set()
         try:

@@ -332,3 +332,57 @@ def test_client_id_is_stable_and_per_station(tmp_path: Path) -> None:
             "plant-7-bench-1",
         )
         assert a.client_id == MqttLink(MqttSettings(), "bench-1", store, bus).client_id
+
+
+@pytest.mark.parametrize(("session_s", "backs_off"), [(2.0, True), (60.0, False)])
+async def test_a_short_session_counts_as_a_failed_attempt(
+    broker: Broker, store: Store, session_s: float, backs_off: bool
+) -> None:
+    """A broker that accepts and soon drops the link (or a second client with the same id)
+    must meet growing delays, not an instant reconnect loop; a long session reconnects at once.
+    """
+    now = 0.0
+    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), clock=lambda: now)
+    session = asyncio.create_task(link._connect_and_serve())
+    try:
+        await asyncio.wait_for(link.wait_connected(), timeout=15)
+        now += session_s  # the injected clock says how long the session lasted
+        broker.stop()
+        if backs_off:
+            with pytest.raises(aiomqtt.MqttError, match=r"dropped after 2\.0 s"):
+                await asyncio.wait_for(session, timeout=15)
+        else:
+            assert await asyncio.wait_for(session, timeout=15) is None
+    finally:
+        session.cancel()
+        await asyncio.gather(session, return_exceptions=True)
+
+
+async def test_an_unexpected_error_in_a_session_is_logged_and_the_link_recovers(
+    broker: Broker, store: Store, caplog: pytest.LogCaptureFixture
+) -> None:
+    bus = EventBus()
+    link = MqttLink(settings_for(broker), "bench-1", store, bus, retry_initial_s=0.1)
+    real = link._publish_state
+    calls = 0
+
+    async def broken_once(client: aiomqtt.Client) -> None:
+        nonlocal calls
+        calls += 1
+        if calls == 1:
+            raise ValueError("injected fault")
+        await real(client)
+
+    link._publish_state = broken_once  # type: ignore[method-assign]
+    async with collecting(broker, link.topics.measurement) as (_, got):
+        task = asyncio.create_task(link.run())
+        try:
+            await wait_until(lambda: calls >= 2 and link.connected, what="second session")
+            m = make_measurement(1)
+            store.add_measurement(m)
+            bus.publish(MeasurementCaptured(m))
+            await wait_until(lambda: bool(got.messages), what="measurement after the fault")
+        finally:
+            task.cancel()
+            await asyncio.gather(task, return_exceptions=True)
+    assert any("injected fault" in (r.exc_text or "") or r.exc_info for r in caplog.records)
