@@ -5,6 +5,7 @@ from __future__ import annotations
 import asyncio
 from collections.abc import Callable
 
+import pytest
 from textual.pilot import Pilot
 from textual.widgets import ContentSwitcher, Static
 
@@ -13,17 +14,18 @@ from daemon.command_api import (
     CalibrateSpan,
     CalibrateZero,
     Command,
+    Rearm,
     Reply,
     SelectJob,
     VerifyCheckMass,
 )
-from daemon.events import LiveReading
+from daemon.events import EventBus, LiveReading
 from drivers.reading import Flag
 from tui.app import HeftDashboard
 from tui.calibration import CalibrationScreen
 from tui.readout import VerdictBanner
 from tui.scripted_bench import JOBS, STATION, out_of_spec_event, session_events
-from tui.source import ScriptedSource
+from tui.source import InProcessSource, ScriptedSource
 
 SIZE = (120, 40)
 
@@ -205,3 +207,58 @@ async def test_keeps_up_with_four_channels_at_80_per_second() -> None:
         assert app.ui_errors == 0
         shown = str(app.query_one("#ch-beam-3 .channel-value", Static).render())
         assert f"{100.0 + 80 * seconds - 1:.2f}" in shown
+
+
+class _ServiceLoop:
+    """A stand-in service on its own thread and loop: publishes live readings until stopped."""
+
+    def __init__(self) -> None:
+        import threading
+
+        self.bus = EventBus()
+        self.published = 0
+        self.loop = asyncio.new_event_loop()
+        self._stop = threading.Event()
+        self.thread = threading.Thread(target=self.loop.run_until_complete, args=(self._run(),))
+
+    async def _run(self) -> None:
+        while not self._stop.is_set():
+            self.published += 1
+            self.bus.publish(LiveReading(STATION, "beam/0", self.published / 80, 1.0, Flag.NONE))
+            await asyncio.sleep(1 / 80)
+
+    async def handle(self, cmd: Command) -> Reply:
+        raise RuntimeError("service-side failure")
+
+    def stop(self) -> None:
+        self._stop.set()
+        self.thread.join(5)
+        self.loop.close()
+
+
+async def test_a_crashing_dashboard_does_not_stop_the_service_thread() -> None:
+    service = _ServiceLoop()
+    service.thread.start()
+    try:
+        source = InProcessSource(service.bus, service.handle, service_loop=service.loop)
+        app = HeftDashboard(source)
+
+        def crash() -> None:
+            raise RuntimeError("a bug in the dashboard")
+
+        with pytest.raises(RuntimeError, match="a bug in the dashboard"):
+            async with app.run_test(size=SIZE) as pilot:
+                await settle(pilot, app, lambda: app.state.events_applied > 10)
+                reply = await source.send(Rearm(command="rearm"))
+                assert not reply.ok and "service-side failure" in reply.message
+                app.call_later(crash)
+                await pilot.pause(0.5)
+        at_crash = service.published
+        for _ in range(100):
+            await asyncio.sleep(0.05)
+            if service.published > at_crash + 10:
+                break
+        assert service.published > at_crash + 10, "the service stopped with the dashboard"
+        assert service.thread.is_alive()
+    finally:
+        service.stop()

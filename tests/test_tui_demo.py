@@ -6,6 +6,7 @@ stopped and removed); one runs the real command line headless in a subprocess.
 
 from __future__ import annotations
 
+import itertools
 import subprocess
 import sys
 from pathlib import Path
@@ -24,7 +25,7 @@ def test_scenario_has_out_of_spec_clubs_and_bumps() -> None:
     assert [c.club for c in plan[:8]] == ["4i", "5i", "6i", "7i", "8i", "9i", "PW", "4i"]
     assert sum(1 for c in plan if c.placement.bumps) == 6  # every 5th of 30
     assert plan[0].club_id == "LK2417-4i-01" and plan[7].club_id == "LK2417-4i-02"
-    for a, b in zip(plan, plan[1:], strict=False):
+    for a, b in itertools.pairwise(plan):
         assert b.placement.t_on_s > a.placement.t_off_s  # one club at a time
 
 
@@ -60,7 +61,7 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
 
 def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
     done = subprocess.run(
-        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "12"],
+        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "8"],
         capture_output=True,
         text=True,
         timeout=90,
