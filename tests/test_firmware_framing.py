@@ -1,0 +1,130 @@
+"""The reference beam firmware's framing (drivers/firmware/heft_beam/framing.py) against the host.
+
+The firmware module is pure and runs on CPython too; here its frames go through the host's
+BeamDriver and the host's commands through the firmware's parser.
+"""
+
+from __future__ import annotations
+
+import py_compile
+from pathlib import Path
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from drivers.firmware.heft_beam import framing
+from drivers.protocols import beam as host
+from drivers.protocols.beam import BeamDriver
+from drivers.reading import DeviceInfo, Flag, Reading, ValueKind
+
+FIRMWARE = Path(__file__).resolve().parent.parent / "drivers" / "firmware" / "heft_beam"
+
+
+def test_nmea_style_checksum_matches_a_published_sentence() -> None:
+    # NMEA 0183 example sentence widely used in receiver manuals (from memory):
+    # $GPGGA,123519,4807.038,N,01131.000,E,1,08,0.9,545.4,M,46.9,M,,*47
+    body = b"GPGGA,123519,4807.038,N,01131.000,E,1,08,0.9,545.4,M,46.9,M,,"
+    assert framing.checksum(body) == 0x47
+    assert host.checksum(body) == 0x47
+
+
+@settings(max_examples=200, deadline=None)
+@given(seq=st.integers(0, 10**6), t_ms=st.integers(0, 2**40),
+       counts=st.lists(st.integers(-(2**23), 2**23 - 1), min_size=1, max_size=4))
+def test_sample_round_trip(seq: int, t_ms: int, counts: list[int]) -> None:
+    out = BeamDriver("beam-1").feed(framing.sample_line(seq, t_ms, counts), 5.0)
+    assert len(out) == len(counts)
+    lo, hi = framing.adc_limits(24)
+    for ch, (reading, c) in enumerate(zip(out, counts, strict=True)):
+        assert isinstance(reading, Reading)
+        assert (reading.channel, reading.value, reading.kind) == (ch, float(c), ValueKind.COUNTS)
+        assert reading.seq == seq % 65536  # the wire wraps seq at 2^16 ...
+        assert reading.device_time_s == (t_ms % 2**32) / 1000  # ... and t_ms at 2^32
+        assert (Flag.OVERLOAD in reading.flags) == (c in (lo, hi))
+
+
+@settings(max_examples=100, deadline=None)
+@given(fw=st.from_regex(r"[A-Za-z0-9.\-]{1,16}", fullmatch=True), channels=st.integers(1, 2),
+       rate=st.sampled_from([10, 80]), bits=st.integers(16, 24),
+       sn=st.from_regex(r"[0-9a-f]{1,16}", fullmatch=True))
+def test_hello_round_trip(fw: str, channels: int, rate: int, bits: int, sn: str) -> None:
+    (info,) = BeamDriver("beam-1").feed(framing.hello_line(fw, channels, rate, bits, sn), 1.0)
+    assert info == DeviceInfo(device="beam-1", model="heft-beam/1", firmware=fw,
+                              serial_number=sn, channels=channels, sample_rate_hz=float(rate),
+                              adc_bits=bits)
+
+
+def test_ok_and_err_lines_become_replies() -> None:
+    driver = BeamDriver("beam-1")
+    assert driver.feed(framing.ok_line("RATE 80") + framing.err_line("RATE 40 not possible"),
+                       1.0) == []
+    assert [(r.command, r.ok) for r in driver.pop_replies()] == [("rate", True), ("rate", False)]
+
+
+@pytest.mark.parametrize(("command", "arg", "parsed"), [
+    ("identify", None, ("ID", None)), ("rate", "80", ("RATE", "80")),
+    ("reboot", None, ("REBOOT", None)),
+])
+def test_host_commands_parse_on_the_board(
+    command: str, arg: str | None, parsed: tuple[str, str | None]
+) -> None:
+    wire = BeamDriver("beam-1").command(command, arg)
+    reader = framing.CommandReader()
+    (line,) = reader.feed(wire)
+    assert framing.parse_command(line) == parsed
+
+
+def test_board_command_reader_handles_crlf_split_and_overflow() -> None:
+    reader = framing.CommandReader()
+    assert reader.feed(b"!RA") == []
+    assert reader.feed(b"TE 10\r\n!ID\n") == [b"!RATE 10", b"!ID"]
+    assert reader.feed(b"!" + b"X" * 200 + b"\n!ID\n") == [b"!ID"]  # over-long line dropped
+
+
+@pytest.mark.parametrize("line", [b"ID", b"!", b"!RATE", b"!RATE ten", b"!FLASH", b"\xff!ID"])
+def test_board_rejects_malformed_commands(line: bytes) -> None:
+    with pytest.raises(ValueError):
+        framing.parse_command(line)
+
+
+def test_twos_complement_matches_hx711_output_codes() -> None:
+    # HX711 datasheet: output 800000h is the minimum, 7FFFFFh the maximum (24-bit 2's complement).
+    assert framing.from_twos_complement(0x800000, 24) == -(2**23)
+    assert framing.from_twos_complement(0x7FFFFF, 24) == 2**23 - 1
+    assert framing.from_twos_complement(0xFFFFFF, 24) == -1
+    assert framing.from_twos_complement(0x000001, 24) == 1
+    assert framing.adc_limits(24) == (-(2**23), 2**23 - 1)
+
+
+def test_millis_clock_spans_the_ports_tick_wrap() -> None:
+    """MicroPython ticks_ms wraps at 2^30 on most ports; the wire's t_ms wraps at 2^32."""
+    period = 2**30
+
+    def ticks_diff(a: int, b: int) -> int:  # MicroPython semantics: signed, modulo the period
+        return ((a - b + period // 2) % period) - period // 2
+
+    clock = framing.MillisClock(period - 100)
+    assert clock.update(period - 50, ticks_diff) == 50
+    assert clock.update(30, ticks_diff) == 130  # the tick counter wrapped; ours did not
+    clock.ms = 2**32 - 10
+    assert clock.update(40, ticks_diff) == 0  # and ours wraps at 2^32 as the protocol says
+
+
+def test_frame_refuses_bodies_that_would_break_framing() -> None:
+    for body in ("a*b", "a\nb", "a\rb"):
+        with pytest.raises(ValueError):
+            framing.frame("$", body)
+    with pytest.raises(ValueError):
+        framing.frame("%", "x")
+
+
+@pytest.mark.parametrize("name", ["main.py", "hx711.py", "config.py", "framing.py"])
+def test_firmware_files_are_valid_python(name: str, tmp_path: Path) -> None:
+    py_compile.compile(str(FIRMWARE / name), cfile=str(tmp_path / "x.pyc"), doraise=True)
+
+
+def test_framing_has_no_cpython_only_imports() -> None:
+    """framing.py must load on the board: it imports nothing at all."""
+    source = (FIRMWARE / "framing.py").read_text()
+    assert not [ln for ln in source.splitlines() if ln.startswith(("import ", "from "))]
