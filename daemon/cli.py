@@ -23,6 +23,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "run",
     "replay",
     "export",
+    "devices",
     "schema",
 )
 
