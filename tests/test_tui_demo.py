@@ -13,18 +13,22 @@ from pathlib import Path
 
 from textual.widgets import Static
 
-from daemon.commands.demo import STATION, demo_bench, scenario
+from daemon.commands.demo import SCENARIO, STATION, demo_bench, demo_plan
 from daemon.measurement import Verdict
 from tui.app import HeftDashboard
 from tui.readout import VerdictBanner
 from tui.source import InProcessSource
 
 
-def test_scenario_has_out_of_spec_clubs_and_bumps() -> None:
-    plan = scenario(30, seed=2417)
-    assert [c.club for c in plan[:8]] == ["4i", "5i", "6i", "7i", "8i", "9i", "PW", "4i"]
-    assert sum(1 for c in plan if c.placement.bumps) == 6  # every 5th of 30
-    assert plan[0].club_id == "LK2417-4i-01" and plan[7].club_id == "LK2417-4i-02"
+def test_plan_starts_with_the_simulator_scenario_then_repeats_the_set() -> None:
+    plan = demo_plan(30, seed=2417)
+    labels = [label for label, _ in SCENARIO.clubs]
+    assert [c.club for c in plan[:8]] == [*labels, labels[0]]
+    assert [c.placement.club for c in plan[:7]] == [club for _, club in SCENARIO.clubs]
+    assert plan[7].placement.club.club_id == "LCW-2611-4I-02"
+    # The first set's one bump, then one every 6th placement of the later sets.
+    assert sum(1 for c in plan[:7] if c.placement.bumps) == 1
+    assert sum(1 for c in plan[7:] if c.placement.bumps) == len(range(12, 31, 6))
     for a, b in itertools.pairwise(plan):
         assert b.placement.t_on_s > a.placement.t_off_s  # one club at a time
 
@@ -44,13 +48,13 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
                 await pilot.pause(0.05)
             assert app.state.measurements, "no capture reached the dashboard"
             first = app.state.measurements[0]
-            assert first.club == "4i" and first.club_id == "LK2417-4i-01"
+            assert first.club == "4-iron" and first.club_id == "LCW-2611-4I"  # id from the scanner
             assert first.verdict in (Verdict.PASS, Verdict.NEAR_LIMIT, Verdict.FAIL)
             assert len(app.state.channels) == 2  # both supports report live values
             await pilot.pause(0.3)
             banner = str(app.query_one(VerdictBanner).render())
-            assert "#1 4i" in banner
-            assert "4i" in str(app.query_one("#club-line", Static).render())
+            assert "#1 4-iron" in banner
+            assert "LCW-2611-4I" in str(app.query_one("#club-line", Static).render())
             await pilot.press("q")
         assert app.ui_errors == 0
         assert workdir.exists()
@@ -73,7 +77,7 @@ def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
     assert captured >= 1
     workdir = Path(summary.rsplit("removed:", 1)[1].strip())
     assert not workdir.exists()
-    assert "LK2417-4i-01" in done.stdout
+    assert "LCW-2611-4I" in done.stdout
 
 
 def test_bad_demo_option_is_refused() -> None:

@@ -80,9 +80,9 @@ def test_value_with_uncertainty() -> None:
 
 
 def test_clubs_sort_as_a_set_reads() -> None:
-    clubs = ["PW", "9i", "SW", "4i", "10i", "GW", "3H", "5W", "odd"]
+    clubs = ["PW", "9i", "SW", "4-iron", "10i", "GW", "3H", "5W", "odd", "7 iron"]
     assert sorted(clubs, key=club_order_key) == [
-        "5W", "3H", "4i", "9i", "10i", "PW", "GW", "SW", "odd"
+        "5W", "3H", "4-iron", "7 iron", "9i", "10i", "PW", "GW", "SW", "odd"
     ]
 
 

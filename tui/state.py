@@ -208,13 +208,14 @@ _WEDGES = ("PW", "AW", "GW", "SW", "LW", "UW")
 def club_order_key(club: str | None) -> tuple[int, float, str]:
     """Sort clubs the way a set reads: woods/hybrids/irons by number, then wedges, then the rest.
 
-    ``'3i' < ... < '9i' < 'PW' < 'GW' < 'SW' < 'LW'``; unknown names sort alphabetically last.
+    ``'3i' < ... < '9-iron' < 'PW' < 'GW' < 'SW' < 'LW'``; unknown names sort last, by name.
     """
     if not club:
         return (9, 0.0, "")
     name = club.strip().upper()
     family = {"W": 0, "H": 1, "I": 2}
-    m = re.fullmatch(r"(\d+)\s*([A-Z]*)", name)
+    m = re.fullmatch(r"(\d+)[\s-]*([A-Z]*)", name)  # '7i', '7 iron', '7-iron', '3W', '4H'
+
     if m:
         suffix = m.group(2)[:1] or "I"
         return (family.get(suffix, 3), float(m.group(1)), name)

@@ -1,11 +1,12 @@
 """``heft demo``: a simulated bench, the service and the dashboard in one command.
 
-Larkspur Clubworks (an invented maker) is building a set of irons, 4-iron to pitching wedge, to
-D2 +/- 0.5. A simulated two-support load-cell beam is served on a pseudo-terminal; the club of
-the set is laid on it hands-free every few seconds, now and then one is built out of spec and
-now and then somebody bumps the bench. The real service reads the pty through pyserial, stores
-into a temporary SQLite database and (with ``--broker``) publishes over MQTT; the dashboard is
-one more subscriber of its events. No hardware, no broker needed.
+Larkspur Clubworks (an invented maker, ``drivers/sim/scenario.py``) is building sets of irons,
+4-iron to pitching wedge, to D2. A simulated two-support load-cell beam and a barcode scanner
+are served on pseudo-terminals; the clubs of the set are laid on the beam hands-free every few
+seconds, now and then one is out of spec and now and then somebody bumps the bench. The real
+service reads the ptys through pyserial, stores into a temporary SQLite database and (with
+``--broker``) publishes over MQTT; the dashboard is one more subscriber of its events. No
+hardware, no broker needed.
 
 The service runs on its own thread and event loop, so the dashboard's redraws never delay
 capture, and an exception in the dashboard never stops it. ``q`` stops everything and removes
@@ -28,115 +29,118 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from daemon.command_api import Command, Reply, SelectSpec, SetClubId
+from daemon.command_api import Command, Reply, SelectSpec
 from daemon.config import StationConfig, parse_config
 from daemon.events import EventBus
 from daemon.mqtt_settings import MqttSettings
-from daemon.physics.swingweight import moment_g_in_from_points, points_from_label
+from daemon.physics.swingweight import label_from_points, moment_g_in_from_points
 from daemon.service import Service
-from drivers.sim.definitions import BeamDef, builtin_definition
-from drivers.sim.devices import make_device
-from drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
+from drivers.sim.devices import BeamDevice, ScannerDevice
+from drivers.sim.physics import BenchTimeline, Club, Placement
 from drivers.sim.pty_server import PtyDevice
+from drivers.sim.scenario import MAKER, larkspur_irons, scenario_timeline
 
 log = logging.getLogger("heft.demo")
 
-STATION = "bench-1"
-JOB = "LK-2417"
-SPEC = "lk-irons-d2"
-TARGET = "D2"
-TOLERANCE_POINTS = 0.5
-# The set: club -> nominal total weight in grams (invented; steel-shafted irons, ~6.5 g a step).
-LARKSPUR_IRONS: dict[str, float] = {
-    "4i": 410.0, "5i": 416.5, "6i": 423.0, "7i": 429.5, "8i": 436.0, "9i": 442.5, "PW": 449.0,
-}
-WEIGHT_TOLERANCE_G = 3.0
-ON_S = 4.0  # a club rests this long on the supports
-GAP_S = 2.5  # then the bench is empty this long
-OUT_OF_SPEC_EVERY = 6  # every 6th club is built heavy in the head
-BUMP_EVERY = 5  # every 5th placement somebody knocks the bench
-SELECT_LEAD_S = 1.0  # the operator picks the next club this long before laying it down
+SPEC = "larkspur-irons"
+WEIGHT_TOLERANCE_G = 3.0  # each club's total weight within this of the first set's (invented)
+OUT_OF_SPEC_EVERY = 9  # in the sets after the first, every 9th club is built off target
+BUMP_EVERY = 6  # ... and every 6th placement somebody knocks the bench
+SELECT_LEAD_S = 1.2  # the operator picks the next club of the set this long before laying it
 READY_TIMEOUT_S = 20.0
+
+SCENARIO = larkspur_irons()
+STATION = SCENARIO.station
+JOB = SCENARIO.job
 
 
 @dataclass(frozen=True, slots=True)
 class DemoClub:
-    """One placement of the scenario: which club of the set, its id, and the physical club."""
+    """One placement: which club of the set (its label in the spec) and the physical club."""
 
     club: str
-    club_id: str
     placement: Placement
 
 
-def scenario(count: int, seed: int, start_s: float = 2.0) -> list[DemoClub]:
-    """``count`` placements cycling through the set, with out-of-spec clubs and bumps."""
-    rng = random.Random(seed)
-    target_points = points_from_label(TARGET)
-    names = list(LARKSPUR_IRONS)
-    out: list[DemoClub] = []
-    t = start_s
-    for k in range(count):
-        name = names[k % len(names)]
-        weight_g = LARKSPUR_IRONS[name] + rng.uniform(-1.5, 1.5)
-        points = target_points + rng.gauss(0.0, 0.15)
-        if (k + 1) % OUT_OF_SPEC_EVERY == 0:
-            points += rng.choice((-1.0, 1.0)) * rng.uniform(0.8, 1.4)
-        balance_point_in = 14.0 + moment_g_in_from_points(points) / weight_g
-        club_id = f"LK2417-{name}-{k // len(names) + 1:02d}"
-        bumps: tuple[tuple[float, float], ...] = ()
-        if (k + 1) % BUMP_EVERY == 0:
-            bumps = ((t + rng.uniform(0.2, 0.6), 0.08 * weight_g),)
-        placement = Placement(Club(weight_g, balance_point_in, club_id), t, t + ON_S, bumps)
-        out.append(DemoClub(name, club_id, placement))
-        t += ON_S + GAP_S
-    return out
+def demo_plan(count: int, seed: int) -> list[DemoClub]:
+    """``count`` placements: the scenario's own first set, then more sets of the same irons.
+
+    The first set is exactly the simulator's Larkspur scenario (two clubs out of spec, one
+    bump). Later sets are rebuilt near the target with a little spread, and now and then one
+    club off target or a bump, so the demo keeps going as long as it is watched.
+    """
+    sc = SCENARIO
+    first = scenario_timeline(sc, seed).placements
+    plan = [DemoClub(label, p) for (label, _), p in zip(sc.clubs, first, strict=True)]
+    rng = random.Random(f"demo:{seed}")
+    t = first[-1].t_off_s + rng.uniform(*sc.gap_s)
+    set_no = 1
+    while len(plan) < count:
+        set_no += 1
+        for label, club in sc.clubs:
+            if len(plan) >= count:
+                break
+            k = len(plan) + 1
+            points = sc.target_points + rng.gauss(0.0, sc.tolerance_points / 4)
+            if k % OUT_OF_SPEC_EVERY == 0:
+                points += rng.choice((-1.0, 1.0)) * (sc.tolerance_points + rng.uniform(0.3, 1.0))
+            weight_g = club.total_weight_g + rng.uniform(-1.5, 1.5)
+            balance_point_in = 14.0 + moment_g_in_from_points(points) / weight_g
+            club_id = f"{club.club_id}-{set_no:02d}"
+            hold_s = rng.uniform(*sc.hold_s)
+            bumps: tuple[tuple[float, float], ...] = ()
+            if k % BUMP_EVERY == 0:
+                bumps = ((t + rng.uniform(0.4, 0.7) * hold_s, sc.bump_g),)
+            placement = Placement(Club(weight_g, balance_point_in, club_id), t, t + hold_s, bumps)
+            plan.append(DemoClub(label, placement))
+            t += hold_s + rng.uniform(*sc.gap_s)
+    return plan
 
 
-def beam_definition() -> BeamDef:
-    d = builtin_definition("beam")
-    assert isinstance(d, BeamDef)
-    return d
-
-
-def station_config(port: str, db: Path, mqtt: MqttSettings | None) -> StationConfig:
-    """The demo station: the simulated beam at 4 in and 36 in, calibrated from its definition."""
-    d = beam_definition()
+def station_config(
+    beam_port: str, scanner_port: str, db: Path, mqtt: MqttSettings | None
+) -> StationConfig:
+    """The demo station: the simulated beam (supports as in the scenario) and the scanner."""
+    sc = SCENARIO
     channels = {
         f"beam/{ch.bench_channel}": {
             "source": "config",
             "zero_counts": ch.offset_counts,
             "counts_per_g": ch.counts_per_g,
         }
-        for ch in d.channels
+        for ch in sc.beam.channels
     }
     data: dict[str, Any] = {
         "station": STATION,
         "job": JOB,
         "storage": {"path": str(db)},
-        "devices": [{"name": "beam", "driver": "beam", "port": port, "baudrate": 115200}],
+        "devices": [
+            {"name": "beam", "driver": "beam", "port": beam_port, "baudrate": 115200},
+            {"name": "scanner", "driver": "scanner", "port": scanner_port},
+        ],
         "geometry": {
             "type": "two_support",
             "channel_a": "beam/0",
-            "position_a_in": 4.0,
+            "position_a_in": sc.geometry.support_a_in,
             "channel_b": "beam/1",
-            "position_b_in": 36.0,
+            "position_b_in": sc.geometry.support_b_in,
         },
         "channels": channels,
-        "capture": {"preset_name": "hx711_80hz", "capacity_g": 5000},
+        "capture": {"preset_name": "hx711_80hz", "capacity_g": sc.beam.capacity_g},
         "specs": {
             SPEC: {
-                "swingweight": TARGET,
-                "tolerance_points": TOLERANCE_POINTS,
+                "swingweight": label_from_points(sc.target_points),
+                "tolerance_points": sc.tolerance_points,
                 "clubs": {
-                    name: {"total_weight": {"min_g": w - WEIGHT_TOLERANCE_G,
-                                            "max_g": w + WEIGHT_TOLERANCE_G}}
-                    for name, w in LARKSPUR_IRONS.items()
+                    label: {"total_weight": {"min_g": club.total_weight_g - WEIGHT_TOLERANCE_G,
+                                             "max_g": club.total_weight_g + WEIGHT_TOLERANCE_G}}
+                    for label, club in sc.clubs
                 },
             }
         },
         "jobs": {
-            JOB: {"spec": SPEC, "description": "Larkspur irons 4-PW, D2"},
-            "LK-2418": {"spec": SPEC, "description": "Larkspur irons, second set"},
+            JOB: {"spec": SPEC, "description": f"{MAKER}: irons 4-PW"},
+            "LCW-2612 irons 4-PW": {"spec": SPEC, "description": f"{MAKER}: the next set"},
         },
         "mqtt": (mqtt or MqttSettings(enabled=False)).model_dump(mode="json"),
     }
@@ -148,8 +152,8 @@ def station_config(port: str, db: Path, mqtt: MqttSettings | None) -> StationCon
 class ServiceThread:
     """The service on its own thread and event loop, plus the demo's operator.
 
-    The operator picks each club of the set (select_spec with the club, set_club_id) shortly
-    before it is laid on the bench, as a person at the bench would.
+    The operator picks each club of the set (select_spec with the club) shortly before it is
+    laid on the bench, as a person at the bench would; the scanner reads its id.
     """
 
     def __init__(self, config: StationConfig, plan: list[DemoClub], bench: PtyDevice) -> None:
@@ -203,11 +207,10 @@ class ServiceThread:
             wait_s = item.placement.t_on_s - SELECT_LEAD_S - self.bench.bench_time_s()
             if wait_s > 0:
                 await asyncio.sleep(wait_s)
-            for cmd in (SelectSpec(command="select_spec", spec=SPEC, club=item.club),
-                        SetClubId(command="set_club_id", club_id=item.club_id)):
-                reply = await self.service.handle_command(cmd)
-                if not reply.ok:
-                    log.warning("demo operator: %s refused: %s", cmd.command, reply.message)
+            cmd = SelectSpec(command="select_spec", spec=SPEC, club=item.club)
+            reply = await self.service.handle_command(cmd)
+            if not reply.ok:
+                log.warning("demo operator: %s refused: %s", cmd.command, reply.message)
 
     async def handle_command(self, cmd: Command) -> Reply:
         return await self.service.handle_command(cmd)
@@ -235,11 +238,18 @@ def demo_bench(
     Everything is stopped and the folder removed on exit, whatever happened inside.
     """
     with tempfile.TemporaryDirectory(prefix="heft-demo-") as workdir:
-        plan = scenario(clubs, seed)
-        timeline = BenchTimeline(make_geometry("two_support"), [c.placement for c in plan])
-        device = make_device(beam_definition(), timeline, seed=seed)
-        with PtyDevice(device, link=Path(workdir) / "beam") as bench:
-            config = station_config(str(bench.path), Path(workdir) / "heft.db", mqtt)
+        plan = demo_plan(clubs, seed)
+        timeline = BenchTimeline(
+            SCENARIO.geometry, [c.placement for c in plan], SCENARIO.dynamics
+        )
+        folder = Path(workdir)
+        beam = BeamDevice(SCENARIO.beam, timeline, seed=seed)
+        scanner_device = ScannerDevice(SCENARIO.scanner, timeline, seed=seed)
+        with (
+            PtyDevice(beam, link=folder / "beam") as bench,
+            PtyDevice(scanner_device, link=folder / "scanner") as scanner,
+        ):
+            config = station_config(bench.path, scanner.path, folder / "heft.db", mqtt)
             runner = ServiceThread(config, plan, bench)
             runner.start()
             try:
