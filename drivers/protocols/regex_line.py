@@ -22,7 +22,8 @@ from drivers.reading import DriverOutput, Flag
 _ESCAPES = {"\\r": "\r", "\\n": "\n", "\\t": "\t"}
 
 
-def _compile(pattern: str, what: str) -> re.Pattern[str]:
+def compile_option(pattern: str, what: str) -> re.Pattern[str]:
+    """Compile a regular expression given as an option; ValueError (for pydantic) if bad."""
     try:
         return re.compile(pattern)
     except re.error as err:
@@ -46,7 +47,7 @@ class RegexLineOptions(LineOptions):
     @field_validator("pattern")
     @classmethod
     def _pattern_has_value_group(cls, pattern: str) -> str:
-        if "value" not in _compile(pattern, "pattern").groupindex:
+        if "value" not in compile_option(pattern, "pattern").groupindex:
             raise ValueError("pattern needs a named group (?P<value>...)")
         return pattern
 
@@ -54,7 +55,7 @@ class RegexLineOptions(LineOptions):
     @classmethod
     def _stable_match_compiles(cls, pattern: str | None) -> str | None:
         if pattern is not None:
-            _compile(pattern, "stable_match")
+            compile_option(pattern, "stable_match")
         return pattern
 
     @field_validator("default_unit")

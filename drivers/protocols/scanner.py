@@ -13,6 +13,7 @@ from typing import Any, ClassVar
 from pydantic import field_validator
 
 from drivers.base import FrameError, LineDriver, LineOptions
+from drivers.protocols.regex_line import compile_option
 from drivers.reading import ClubTag, DriverOutput
 
 
@@ -26,10 +27,7 @@ class ScannerOptions(LineOptions):
     @classmethod
     def _compiles(cls, pattern: str | None) -> str | None:
         if pattern is not None:
-            try:
-                re.compile(pattern)
-            except re.error as err:
-                raise ValueError(f"not a valid regular expression: {err}") from None
+            compile_option(pattern, "pattern")
         return pattern
 
 
