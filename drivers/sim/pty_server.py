@@ -16,8 +16,9 @@ on Linux with pyserial 3.5 (see tests/test_sim_pty.py):
   symlink is removed at unplug (like a USB by-id link) and comes back on ``replug()``.
 
 While no client has the port open, the kernel keeps what the device wrote up to its buffer size
-and drops later writes (the writer never blocks); a client that opens the port late reads those
-older lines first, as with a real USB serial adapter, so it should flush its input on open.
+and later writes are dropped (the writer never blocks). pyserial flushes the input buffer when it
+opens a port, so a client starts with what the device sends after it opened, usually in the
+middle of a line, as with a real adapter: the drivers resynchronise on the next line end.
 """
 
 from __future__ import annotations
@@ -104,7 +105,7 @@ class PtyDevice:
         if self._thread is not None:
             raise RuntimeError(f"{self.device.name}: already started")
         self._t0 = self._clock()
-        self._open()
+        self._open(boot_s=0.0)  # exactly 0: the same sample grid as a virtual-time run
         self._thread = threading.Thread(
             target=self._serve, name=f"sim-{self.device.name}", daemon=True
         )
@@ -157,7 +158,7 @@ class PtyDevice:
 
     # --- pty handling (server thread, or before it starts) ----------------------------------
 
-    def _open(self) -> None:
+    def _open(self, boot_s: float | None = None) -> None:
         master, slave = os.openpty()
         tty.setraw(slave)  # no echo, no line editing, no CR/LF translation
         os.set_blocking(master, False)
@@ -171,7 +172,7 @@ class PtyDevice:
             tmp.symlink_to(self._port)
             tmp.replace(self.link)  # atomic: a client never sees a missing or half-made link
         with self._lock:
-            self.device.boot(self.bench_time_s())
+            self.device.boot(self.bench_time_s() if boot_s is None else boot_s)
 
     def _close_pty(self) -> None:
         if self.link is not None and self._port is not None:
