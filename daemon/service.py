@@ -55,6 +55,7 @@ from daemon.events import (
     MeasurementCaptured,
 )
 from daemon.measurement import Measurement
+from daemon.mqtt_link import MqttLink
 from daemon.pipeline import BenchPipeline, SelectionError
 from daemon.records import CalibrationRecord, ReferenceMass
 from daemon.sd_notify import notify, watchdog_interval_s
@@ -74,6 +75,7 @@ CALIBRATION_CHECK_EVERY_S = 60.0
 CALIBRATION_WINDOW_S = 1.5
 RECONNECT_MAX_WAIT_S = 5.0
 STORE_RETRY_MAX_WAIT_S = 10.0
+MQTT_RETRY_MAX_WAIT_S = 5.0  # a broker back after an outage is found within this long
 
 
 @dataclass
@@ -130,6 +132,7 @@ class Service:
         self._pending_zero: dict[str, CalibrationRecord] = {}
         self._calibrating: set[str] = set()
         self.stored_count = 0
+        self.mqtt_link: MqttLink | None = None
         self.ready = asyncio.Event()
 
     # ------------------------------------------------------------------------------ running
@@ -182,13 +185,16 @@ class Service:
             log.info("station %s running: %d device(s)", self.config.station, len(self.devices))
 
     async def _mqtt(self) -> None:
-        from daemon.mqtt_link import MqttLink
-
         assert self.store is not None
-        link = MqttLink(
-            self.config.mqtt, self.config.station, self.store, self.bus, self.handle_command
+        self.mqtt_link = MqttLink(
+            self.config.mqtt,
+            self.config.station,
+            self.store,
+            self.bus,
+            self.handle_command if self.config.mqtt.commands_enabled else None,
+            retry_max_s=MQTT_RETRY_MAX_WAIT_S,
         )
-        await link.run()
+        await self.mqtt_link.run()
 
     # ------------------------------------------------------------------------------ events
 

@@ -45,6 +45,7 @@ def station_toml(
     port: str,
     db: Path,
     mqtt_port: int | None = None,
+    mqtt_root: str = "heft",
     station: str = "bench-1",
     extra: str = "",
     capture: str = 'preset_name = "hx711_80hz"\ncapacity_g = 5000',
@@ -54,6 +55,7 @@ def station_toml(
     ch0, ch1 = d.channels[0], d.channels[1]
     mqtt = (
         f'[mqtt]\nenabled = true\nhost = "127.0.0.1"\nport = {mqtt_port}\n'
+        f'topic_root = "{mqtt_root}"\nkeepalive_s = 5\n'
         if mqtt_port is not None
         else "[mqtt]\nenabled = false\n"
     )

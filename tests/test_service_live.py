@@ -1,0 +1,289 @@
+"""The service end to end: a simulated beam on a real pty, real SQLite, a real Mosquitto broker.
+
+Check values are the simulated clubs' own weights and moments (Lorythmic points from the
+domain.md definition). Every wait polls for a condition with a generous timeout; no test depends
+on how fast this machine is.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import json
+import signal
+import sys
+import uuid
+from collections.abc import AsyncIterator
+from pathlib import Path
+
+import pytest
+
+from daemon import command_api as api
+from daemon.config import parse_config
+from daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
+from daemon.measurement import Measurement, Verdict
+from daemon.mqtt_topics import Topics
+from daemon.replay import replay
+from daemon.service import Service
+from daemon.storage import Store
+from drivers.sim.physics import Placement
+from drivers.sim.pty_server import PtyDevice
+from tests.mqtt_broker import Broker
+from tests.mqtt_helpers import collecting, wait_until
+from tests.service_bench import (
+    LARKSPUR_CLUBS,
+    beam_device,
+    expected_points,
+    placements,
+    station_toml,
+)
+from tests.test_mqtt_reconnect import historian
+
+
+@contextlib.asynccontextmanager
+async def bench(
+    tmp_path: Path,
+    plan: list[Placement],
+    *,
+    broker: Broker | None = None,
+    record_dir: Path | None = None,
+) -> AsyncIterator[tuple[Service, PtyDevice, list[Event]]]:
+    """A simulated beam served on a pty and the service reading it; events collected."""
+    root = f"heft-test-{uuid.uuid4().hex[:8]}"
+    text = station_toml(
+        port=str(tmp_path / "beam"),
+        db=tmp_path / "heft.db",
+        mqtt_port=broker.port if broker is not None else None,
+        mqtt_root=root,
+    )
+    import tomllib
+
+    config = parse_config(tomllib.loads(text))
+    pty = PtyDevice(beam_device(plan), link=tmp_path / "beam").start()
+    service = Service(config, record_dir=record_dir)
+    events: list[Event] = []
+    sub = service.bus.subscribe()
+
+    async def collect() -> None:
+        async for ev in sub:
+            events.append(ev)
+
+    collector = asyncio.create_task(collect())
+    task = asyncio.create_task(service.run())
+    try:
+        await asyncio.wait_for(service.ready.wait(), timeout=15)
+        yield service, pty, events
+    finally:
+        task.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await task
+        collector.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await collector
+        await asyncio.to_thread(pty.close)
+
+
+def set_query_only(store: Store, on: bool) -> None:
+    # The test reaches into the store to switch on SQLite's own refusal of writes.
+    with store._lock:
+        store._conn.execute(f"PRAGMA query_only={int(on)}")
+
+
+def captured(events: list[Event]) -> list[Measurement]:
+    return [e.measurement for e in events if isinstance(e, MeasurementCaptured)]
+
+
+def alarm_changes(events: list[Event], kind: AlarmKind) -> list[bool]:
+    return [e.alarm.active for e in events if isinstance(e, AlarmChanged) and e.alarm.kind is kind]
+
+
+async def test_placements_become_measurements_on_mqtt_and_replay_gives_the_same(
+    broker: Broker, tmp_path: Path
+) -> None:
+    plan = placements(LARKSPUR_CLUBS, start_s=1.0, on_s=2.5, gap_s=1.0)
+    rec_dir = tmp_path / "rec"
+    async with bench(tmp_path, plan, broker=broker, record_dir=rec_dir) as (svc, _, events):
+        topics = Topics(svc.config.mqtt.topic_root, "bench-1")
+        async with collecting(broker, topics.measurement, topics.cmd_reply) as (client, got):
+            await wait_until(lambda: len(got.on(topics.measurement)) >= 3, timeout_s=40,
+                             what="three measurements on MQTT")
+            # Bad commands over MQTT are refused with a reply naming what was wrong.
+            for bad in (
+                {"command": "select_job", "job": "woods", "request_id": "r1"},
+                {"command": "fly", "request_id": "r2"},
+                {"command": "calibrate_span", "channel": "beam/0", "mass_g": -5,
+                 "request_id": "r3"},
+            ):
+                await client.publish(topics.cmd, json.dumps(bad), qos=1)
+            await wait_until(lambda: len(got.on(topics.cmd_reply)) >= 3, what="three replies")
+        await wait_until(lambda: svc.store is not None and svc.store.outbox_count() == 0,
+                         what="outbox drained")
+        assert svc.store is not None
+        stored = list(svc.store.measurements())
+    replies = {
+        json.loads(p).get("request_id"): json.loads(p) for p in got.payloads(topics.cmd_reply)
+    }
+    assert all(not r["ok"] for r in replies.values())
+    assert "no job 'woods'" in replies["r1"]["message"]
+    assert "command" in replies["r2"]["message"]
+    assert "mass_g" in replies["r3"]["message"]
+
+    on_mqtt = [Measurement.model_validate_json(p) for p in got.payloads(topics.measurement)]
+    assert [m.seq for m in on_mqtt] == [1, 2, 3]
+    assert on_mqtt == stored == captured(events)  # stored, published and announced alike
+    for m, p in zip(on_mqtt, plan, strict=True):
+        assert m.total_weight_g == pytest.approx(p.club.total_weight_g, abs=0.3)
+        assert m.swingweight_points == pytest.approx(expected_points(p.club), abs=0.1)
+    assert [m.verdict for m in on_mqtt] == [Verdict.PASS, Verdict.PASS, Verdict.FAIL]
+    assert alarm_changes(events, AlarmKind.OUT_OF_SPEC) == [True]
+
+    # The recording of this run, replayed, gives the same captures.
+    again = list(replay(svc.config, [rec_dir / "beam.jsonl"]))
+    assert len(again) == len(on_mqtt)
+    for live, rep in zip(on_mqtt, again, strict=True):
+        assert rep.total_weight_g == pytest.approx(live.total_weight_g, abs=0.01)
+        assert rep.swingweight_points == pytest.approx(live.swingweight_points, abs=0.01)
+        assert [w.n for w in rep.channels] == pytest.approx([w.n for w in live.channels], abs=2)
+
+
+async def test_commands_are_answered(tmp_path: Path) -> None:
+    plan = placements(LARKSPUR_CLUBS[:1], start_s=30.0)
+    async with bench(tmp_path, plan) as (svc, _, _events):
+        await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
+        await asyncio.sleep(0.3)  # a few readings to tare on
+        ok = await svc.handle_command(api.Tare(command="tare", device="beam"))
+        assert ok.ok and ok.data["channels"] == ["beam/0", "beam/1"]
+        assert (await svc.handle_command(api.SelectSpec(command="select_spec", spec="irons-d2"))).ok
+        refused = [
+            await svc.handle_command(api.SelectJob(command="select_job", job="woods")),
+            await svc.handle_command(api.Tare(command="tare", device="scale")),
+            await svc.handle_command(api.CalibrateZero(command="calibrate_zero", channel="beam/0")),
+            await svc.handle_command(api.AcknowledgeAlarm(command="ack_alarm", key="overload:x")),
+            await svc.handle_command(
+                api.SetBalancePoint(command="set_balance_point", balance_point="29in")
+            ),
+        ]
+        assert [r.ok for r in refused] == [False] * 5
+        assert "no job 'woods'" in refused[0].message
+        assert "no device 'scale'" in refused[1].message
+        assert "source = 'config'" in refused[2].message
+        assert "overload:x" in refused[3].message
+        assert "single_scale" in refused[4].message
+
+
+async def test_device_unplugged_raises_offline_alarm_and_recovers_by_itself(tmp_path: Path) -> None:
+    # One club placed after the replug: it must still be captured.
+    plan = [Placement(LARKSPUR_CLUBS[0], 6.0, 9.0)]
+    async with bench(tmp_path, plan) as (svc, pty, events):
+        await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
+        await asyncio.to_thread(pty.unplug)
+        await wait_until(
+            lambda: alarm_changes(events, AlarmKind.DEVICE_OFFLINE) == [True],
+            timeout_s=10, what="device-offline alarm",
+        )
+        assert not svc.devices["beam"].connected
+        await asyncio.sleep(1.0)
+        await asyncio.to_thread(pty.replug)
+        await wait_until(
+            lambda: alarm_changes(events, AlarmKind.DEVICE_OFFLINE) == [True, False],
+            timeout_s=20, what="device-offline alarm cleared",
+        )
+        await wait_until(lambda: len(captured(events)) == 1, timeout_s=20, what="capture")
+        assert svc.store is not None
+        history = [(a.kind, a.active) for a in svc.store.alarm_history()]
+    assert (AlarmKind.DEVICE_OFFLINE, True) in history
+    assert (AlarmKind.DEVICE_OFFLINE, False) in history
+    weight = LARKSPUR_CLUBS[0].total_weight_g
+    assert captured(events)[0].total_weight_g == pytest.approx(weight, abs=0.3)
+
+
+async def test_broker_stopped_ten_seconds_loses_no_measurement(
+    broker: Broker, tmp_path: Path
+) -> None:
+    # Sessions must survive the broker's own restart: persistence on (as a plant broker runs).
+    data_dir = tmp_path / "mosquitto-data"
+    data_dir.mkdir()
+    data_dir.chmod(0o777)
+    broker.stop()
+    broker.extra_conf = f"persistence true\npersistence_location {data_dir}/\n"
+    broker.start()
+    plan = placements(LARKSPUR_CLUBS * 3, start_s=1.0, on_s=2.0, gap_s=0.7)[:8]
+    async with bench(tmp_path, plan, broker=broker) as (svc, _, events):
+        topic = Topics(svc.config.mqtt.topic_root, "bench-1").measurement
+        async with historian(broker, topic) as received:
+            await wait_until(lambda: len(received) >= 1, timeout_s=30, what="first measurement")
+            await asyncio.to_thread(broker.stop)
+            await asyncio.sleep(10.0)
+            during = len(captured(events)) - len(received)
+            await asyncio.to_thread(broker.start)
+            await wait_until(lambda: len(captured(events)) == len(plan), timeout_s=40,
+                             what="every placement captured")
+            assert svc.store is not None
+            store = svc.store
+            want = {str(m.id) for m in store.measurements()}
+            await wait_until(lambda: {json.loads(p)["id"] for p in received} >= want,
+                             timeout_s=30, what="every stored measurement on MQTT")
+    assert during >= 2  # captures really happened while the broker was away
+    assert len(want) == len(plan)
+    by_id: dict[str, set[bytes]] = {}
+    for p in received:
+        by_id.setdefault(json.loads(p)["id"], set()).add(p)
+    assert set(by_id) == want
+    assert all(len(copies) == 1 for copies in by_id.values())  # duplicates only as the same id
+
+
+async def test_storage_failure_keeps_the_measurement_and_retries(tmp_path: Path) -> None:
+    plan = [Placement(LARKSPUR_CLUBS[1], 1.0, 4.0)]
+    async with bench(tmp_path, plan) as (svc, _, events):
+        store = svc.store
+        assert store is not None
+        # SQLite itself refuses every write ("attempt to write a readonly database").
+        set_query_only(store, True)
+        try:
+            await wait_until(
+                lambda: alarm_changes(events, AlarmKind.STORAGE_FAILED) == [True],
+                timeout_s=30, what="storage-failed alarm",
+            )
+            assert captured(events) == []  # not published before it is stored
+        finally:
+            set_query_only(store, False)
+        await wait_until(lambda: len(captured(events)) == 1, timeout_s=30, what="stored later")
+        assert alarm_changes(events, AlarmKind.STORAGE_FAILED) == [True, False]
+        assert [m.id for m in store.measurements()] == [captured(events)[0].id]
+
+
+
+async def test_kill_9_during_a_burst_keeps_every_acknowledged_measurement(
+    broker: Broker, tmp_path: Path
+) -> None:
+    root = f"heft-test-{uuid.uuid4().hex[:8]}"
+    db = tmp_path / "heft.db"
+    config = tmp_path / "station.toml"
+    config.write_text(
+        station_toml(port=str(tmp_path / "beam"), db=db, mqtt_port=broker.port, mqtt_root=root)
+    )
+    plan = placements(LARKSPUR_CLUBS * 4, start_s=1.0, on_s=1.6, gap_s=0.5)
+    topic = Topics(root, "bench-1").measurement
+    pty = PtyDevice(beam_device(plan), link=tmp_path / "beam").start()
+    proc = await asyncio.create_subprocess_exec(
+        sys.executable, "-m", "daemon", "run", "--config", str(config), "--log-level", "warning",
+        stdout=asyncio.subprocess.DEVNULL, stderr=asyncio.subprocess.PIPE,
+    )
+    try:
+        async with collecting(broker, topic) as (_, got):
+            await wait_until(lambda: len(got.on(topic)) >= 4, timeout_s=40,
+                             what="four measurements from heft run")
+            proc.kill()  # SIGKILL in the middle of the burst
+            await asyncio.wait_for(proc.wait(), timeout=10)
+    finally:
+        if proc.returncode is None:
+            proc.kill()
+            await proc.wait()
+        await asyncio.to_thread(pty.close)
+    assert proc.returncode == -signal.SIGKILL
+    acknowledged = {json.loads(p)["id"] for p in got.payloads(topic)}
+    with Store(db) as store:
+        assert store.integrity_check() == "ok"
+        stored = {str(m.id) for m in store.measurements()}
+    assert len(acknowledged) >= 4
+    assert acknowledged <= stored  # every measurement the broker had is in the database
