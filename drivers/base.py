@@ -234,6 +234,7 @@ class Driver(abc.ABC):
         self._synced = False
         self._in_burst = False
         self._burst_errors = 0
+        self._noise_warned = False
 
     def _good_frame(self, t_mono_s: float) -> None:
         """Record one good frame; ends a burst of bad ones."""
@@ -410,11 +411,11 @@ class LineDriver(Driver):
 
     @staticmethod
     def _text(line: bytes) -> str:
-        """Decode a line as printable ASCII or raise FrameError."""
+        """Decode a line as printable ASCII (tabs allowed) or raise FrameError."""
         try:
             text = line.decode("ascii")
         except UnicodeDecodeError:
             raise FrameError("non-ASCII bytes in line") from None
-        if not text.isprintable():
+        if not text.replace("\t", " ").isprintable():
             raise FrameError("control characters in line")
         return text

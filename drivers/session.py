@@ -50,7 +50,7 @@ class DeviceSession:
         self._clock = clock
         self._silence_timeout_s = silence_timeout_s
         self._open = False
-        self._waiting: deque[asyncio.Future[CommandReply]] = deque()
+        self._waiting: deque[tuple[str, asyncio.Future[CommandReply]]] = deque()
         self.last_rx_mono_s: float | None = None
 
     @property
@@ -59,6 +59,7 @@ class DeviceSession:
 
     async def outputs(self) -> AsyncIterator[DriverOutput]:
         """Open the device and yield its outputs until the port is lost (TransportError)."""
+        loop = asyncio.get_running_loop()
         self.driver.reset()
         await self.transport.open()
         self._open = True
@@ -69,24 +70,24 @@ class DeviceSession:
                 await self.transport.write(opening)
             interval = self.driver.poll_interval_s
             poll = self.driver.poll_request() if interval else None
-            now = self._clock()
-            next_poll = now
-            last_rx = now
+            # Polls and silence run on the loop's clock (real time); ``clock`` only stamps.
+            next_poll = last_rx = loop.time()
             while True:
-                if poll is not None and interval is not None and self._clock() >= next_poll:
+                if poll is not None and interval is not None and loop.time() >= next_poll:
                     await self.transport.write(poll)
-                    next_poll = self._clock() + interval
+                    next_poll = loop.time() + interval
                 if pending is None:
                     pending = asyncio.ensure_future(self.transport.read())
-                timeout = self._wait_time(next_poll if poll is not None else None, last_rx)
+                timeout = self._wait_time(loop.time(), next_poll if poll else None, last_rx)
                 done, _ = await asyncio.wait({pending}, timeout=timeout)
                 if not done:
-                    self._check_silence(last_rx)
+                    self._check_silence(loop.time() - last_rx)
                     continue
                 chunk = pending.result()  # raises TransportError on loss
                 pending = None
-                last_rx = self.last_rx_mono_s = self._clock()
-                produced = self.driver.feed(chunk, last_rx)
+                last_rx = loop.time()
+                stamp = self.last_rx_mono_s = self._clock()
+                produced = self.driver.feed(chunk, stamp)
                 self._deliver_replies()
                 for item in produced:
                     yield item
@@ -96,13 +97,13 @@ class DeviceSession:
                 pending.cancel()
                 with contextlib.suppress(asyncio.CancelledError, TransportError):
                     await pending
-            for fut in self._waiting:
+            for _, fut in self._waiting:
                 if not fut.done():
                     fut.set_exception(TransportError(f"device {self.device_name!r} closed"))
             self._waiting.clear()
             await self.transport.close()
 
-    def _wait_time(self, next_poll: float | None, last_rx: float) -> float | None:
+    def _wait_time(self, now: float, next_poll: float | None, last_rx: float) -> float | None:
         deadlines = []
         if next_poll is not None:
             deadlines.append(next_poll)
@@ -110,24 +111,23 @@ class DeviceSession:
             deadlines.append(last_rx + self._silence_timeout_s)
         if not deadlines:
             return None
-        return max(0.0, min(deadlines) - self._clock())
+        return max(0.0, min(deadlines) - now)
 
-    def _check_silence(self, last_rx: float) -> None:
-        if self._silence_timeout_s is None:
-            return
-        quiet = self._clock() - last_rx
-        if quiet >= self._silence_timeout_s:
+    def _check_silence(self, quiet_s: float) -> None:
+        if self._silence_timeout_s is not None and quiet_s >= self._silence_timeout_s:
             raise DeviceSilentError(
                 f"device {self.device_name!r} ({self.transport.description}) sent nothing for "
-                f"{quiet:.1f} s")
+                f"{quiet_s:.1f} s")
 
     def _deliver_replies(self) -> None:
+        """Hand each reply to the oldest caller waiting for that command (or any, if unknown)."""
         for reply in self.driver.pop_replies():
             log.debug("device %r replied %s", self.device_name, reply)
-            while self._waiting:
-                fut = self._waiting.popleft()
-                if not fut.done():
+            for entry in self._waiting:
+                name, fut = entry
+                if not fut.done() and reply.command in (name, "?"):
                     fut.set_result(reply)
+                    self._waiting.remove(entry)
                     break
 
     async def send_command(
@@ -136,7 +136,8 @@ class DeviceSession:
         """Send a host command ('zero', 'tare', 'identify', 'rate', 'reboot').
 
         With ``reply_timeout_s`` (and ``outputs()`` running), wait that long for the device's
-        reply and return it (None on timeout). Raises ``UnsupportedCommand`` for a command the
+        reply to this command and return it (None on timeout; ``CommandReply.ok`` says whether
+        the device did it). Raises ``UnsupportedCommand`` for a command the
         driver lacks and ``TransportError`` when the port is not open or fails.
         """
         data = self.driver.command(name, arg)
@@ -145,7 +146,7 @@ class DeviceSession:
         fut: asyncio.Future[CommandReply] | None = None
         if reply_timeout_s is not None:
             fut = asyncio.get_running_loop().create_future()
-            self._waiting.append(fut)
+            self._waiting.append((name, fut))
         await self.transport.write(data)
         if fut is None:
             return None
@@ -153,5 +154,5 @@ class DeviceSession:
             return await asyncio.wait_for(fut, reply_timeout_s)
         except TimeoutError:
             with contextlib.suppress(ValueError):
-                self._waiting.remove(fut)
+                self._waiting.remove((name, fut))
             return None
