@@ -38,7 +38,11 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
         assert runner.loop is not None and runner.service.store is not None
         workdir = Path(runner.config.storage.path).parent
         source = InProcessSource(
-            runner.bus, runner.handle_command, runner.service.store, service_loop=runner.loop
+            runner.bus,
+            runner.handle_command,
+            runner.service.store,
+            service_loop=runner.loop,
+            subscription=runner.dashboard_subscription,
         )
         app = HeftDashboard(source, station=STATION)
         async with app.run_test(size=(120, 40)) as pilot:
@@ -51,6 +55,10 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
             assert first.club == "4-iron" and first.club_id == "LCW-2611-4I"  # id from the scanner
             assert first.verdict in (Verdict.PASS, Verdict.NEAR_LIMIT, Verdict.FAIL)
             assert len(app.state.channels) == 2  # both supports report live values
+            # Events from before the dashboard started: the devices and the seeded calibration
+            # of beam/1 that falls due in 5 days.
+            assert {"beam", "scanner"} <= set(app.state.devices)
+            assert "calibration_due:beam/1" in app.state.alarms
             await pilot.pause(0.3)
             banner = str(app.query_one(VerdictBanner).render())
             assert "#1 4-iron" in banner

@@ -223,11 +223,12 @@ class CalibrationScreen(Screen[None]):
             self._message("\n".join(lines), error=True)
             return
         self.results += lines
-        self._message("")
+        self._message("\n".join(lines))  # what the service said, until the next step answers
         next_step = {"calibrate_zero": "step-span", "calibrate_span": "step-verify",
                      "verify": "step-result"}[cmd.command]
         if next_step == "step-result":
             self.query_one("#cal-result", Static).update("\n".join(self.results))
+            self._message("")
         self._go(next_step)
 
     def action_close(self) -> None:

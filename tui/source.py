@@ -20,7 +20,7 @@ from concurrent.futures import Future
 from typing import Any, Protocol
 
 from daemon.command_api import Command, Reply
-from daemon.events import Event, EventBus
+from daemon.events import Event, EventBus, Subscription
 from daemon.measurement import Measurement
 
 INBOX_SIZE = 20_000  # about a minute of four channels at 80 samples/s
@@ -173,6 +173,8 @@ class InProcessSource(EventSource):
         service_loop: the loop the service runs on when it has its own thread; ``None`` when the
             service shares the dashboard's loop.
         jobs: job names from the station config, for the picker.
+        subscription: a subscription taken before the service started, so that its first
+            events (devices found, calibration alarms) are not missed; default: subscribe now.
     """
 
     label = "in-process service"
@@ -185,9 +187,11 @@ class InProcessSource(EventSource):
         *,
         service_loop: asyncio.AbstractEventLoop | None = None,
         jobs: Sequence[str] = (),
+        subscription: Subscription | None = None,
     ) -> None:
         super().__init__()
         self._bus = bus
+        self._early = subscription
         self._handle_command = handle_command
         self._store = store
         self._service_loop = service_loop
@@ -208,7 +212,7 @@ class InProcessSource(EventSource):
 
     async def _forward(self, ui_loop: asyncio.AbstractEventLoop | None) -> None:
         """Runs on the service's loop: moves events from the bus to the dashboard in batches."""
-        sub = self._bus.subscribe(maxsize=INBOX_SIZE)
+        sub, self._early = self._early or self._bus.subscribe(maxsize=INBOX_SIZE), None
         try:
             while True:
                 batch = [await sub.queue.get()]

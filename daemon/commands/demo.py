@@ -26,6 +26,7 @@ import threading
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass
+from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
 from typing import Any
 
@@ -34,11 +35,14 @@ from daemon.config import StationConfig, parse_config
 from daemon.events import EventBus
 from daemon.mqtt_settings import MqttSettings
 from daemon.physics.swingweight import label_from_points, moment_g_in_from_points
+from daemon.records import CalibrationRecord, ReferenceMass
 from daemon.service import Service
+from daemon.storage import Store
 from drivers.sim.devices import BeamDevice, ScannerDevice
 from drivers.sim.physics import BenchTimeline, Club, Placement
 from drivers.sim.pty_server import PtyDevice
 from drivers.sim.scenario import MAKER, larkspur_irons, scenario_timeline
+from tui.source import INBOX_SIZE
 
 log = logging.getLogger("heft.demo")
 
@@ -102,14 +106,9 @@ def station_config(
 ) -> StationConfig:
     """The demo station: the simulated beam (supports as in the scenario) and the scanner."""
     sc = SCENARIO
-    channels = {
-        f"beam/{ch.bench_channel}": {
-            "source": "config",
-            "zero_counts": ch.offset_counts,
-            "counts_per_g": ch.counts_per_g,
-        }
-        for ch in sc.beam.channels
-    }
+    # Calibrations come from the database (seeded by seed_calibrations), so the dashboard's
+    # calibration flow works on the demo bench too.
+    channels = {f"beam/{ch.bench_channel}": {"source": "database"} for ch in sc.beam.channels}
     data: dict[str, Any] = {
         "station": STATION,
         "job": JOB,
@@ -149,6 +148,38 @@ def station_config(
     return parse_config(data)
 
 
+def seed_calibrations(db: Path, today: date) -> None:
+    """Span records as if the beam was calibrated 85 days ago; beam/1 falls due in 5 days."""
+    beam = SCENARIO.beam
+    store = Store(db)
+    try:
+        for ch, due_in_days in zip(beam.channels, (45, 5), strict=False):
+            channel = f"beam/{ch.bench_channel}"
+            store.add_calibration(
+                CalibrationRecord(
+                    id=f"demo-{ch.bench_channel}-span",
+                    station=STATION,
+                    channel=channel,
+                    kind="span",
+                    time_utc=datetime.combine(today - timedelta(days=85), datetime.min.time(),
+                                              tzinfo=UTC),
+                    zero_counts=ch.offset_counts,
+                    counts_per_g=ch.counts_per_g,
+                    reference=ReferenceMass(mass_g=1000.0, weight_class="M1",
+                                            weight_id="LCW-REF-1000"),
+                    result_g=1000.0,
+                    residual_g=0.0,
+                    next_due=today + timedelta(days=due_in_days),
+                    device_model=beam.model,
+                    device_firmware=beam.firmware,
+                    device_serial=beam.serial_number,
+                    note="seeded by heft demo",
+                )
+            )
+    finally:
+        store.close()
+
+
 class ServiceThread:
     """The service on its own thread and event loop, plus the demo's operator.
 
@@ -162,6 +193,8 @@ class ServiceThread:
         self.bench = bench
         self.bus = EventBus()
         self.service = Service(config, self.bus)
+        # Taken before the service starts, so the dashboard sees its very first events.
+        self.dashboard_subscription = self.bus.subscribe(maxsize=INBOX_SIZE)
         self.loop: asyncio.AbstractEventLoop | None = None
         self.error: BaseException | None = None
         self._main: asyncio.Task[None] | None = None
@@ -249,6 +282,7 @@ def demo_bench(
             PtyDevice(beam, link=folder / "beam") as bench,
             PtyDevice(scanner_device, link=folder / "scanner") as scanner,
         ):
+            seed_calibrations(folder / "heft.db", datetime.now(UTC).date())
             config = station_config(bench.path, scanner.path, folder / "heft.db", mqtt)
             runner = ServiceThread(config, plan, bench)
             runner.start()
@@ -303,6 +337,7 @@ def run(args: argparse.Namespace) -> int:
             runner.service.store,
             service_loop=runner.loop,
             jobs=list(runner.config.jobs),
+            subscription=runner.dashboard_subscription,
         )
         app = HeftDashboard(source, station=STATION, bell=args.bell)
         if args.headless_seconds is None:
