@@ -249,7 +249,7 @@ class BenchPipeline:
             geometry.balance_point_prefix
         ):
             try:
-                self.set_balance_point(text[len(geometry.balance_point_prefix) :], tag.t_mono_s)
+                self._set_balance_point(text[len(geometry.balance_point_prefix) :], tag.t_mono_s)
             except SelectionError as err:
                 log.warning("scanner %s: %s", tag.device, err)
             return
@@ -419,6 +419,10 @@ class BenchPipeline:
 
     def set_balance_point(self, value: str | float, t_mono_s: float | None = None) -> list[Event]:
         """Balance point of the club being weighed (single-scale geometry); may complete it."""
+        self._set_balance_point(value, t_mono_s)
+        return self._take()
+
+    def _set_balance_point(self, value: str | float, t_mono_s: float | None) -> None:
         geometry = self.config.geometry
         if not isinstance(geometry, SingleScaleGeometry):
             raise SelectionError(
@@ -436,7 +440,6 @@ class BenchPipeline:
         weighing = self._pending.get("weight")
         if weighing is not None and t - weighing.t_s <= geometry.pairing_window_s:
             self._measure([self._pending.pop("weight")], t)
-        return self._take()
 
     def tare(self, device: str | None, window_s: float = 0.5) -> list[str]:
         """Take the mean of the last ``window_s`` of each channel (of ``device``) as its tare.

@@ -82,15 +82,15 @@ def _sources(config: StationConfig, paths: Sequence[Path]) -> list[_Source]:
 
 def _merged(sources: list[_Source]) -> Iterator[tuple[float, int, bytes]]:
     """(t, source index, bytes) of every received chunk, in time order (stable per file)."""
-    streams = [
-        (
-            (s.offset_s + c.t, i, c.data)
-            for c in s.recording.rx
-            if c.device == s.recording.header.device
-        )
-        for i, s in enumerate(sources)
-    ]
+    streams = [_stream(i, s) for i, s in enumerate(sources)]
     return heapq.merge(*streams, key=lambda item: (item[0], item[1]))
+
+
+def _stream(index: int, source: _Source) -> Iterator[tuple[float, int, bytes]]:
+    name = source.recording.header.device
+    for c in source.recording.rx:
+        if c.device == name:
+            yield source.offset_s + c.t, index, c.data
 
 
 def replay(

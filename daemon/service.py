@@ -232,6 +232,11 @@ class Service:
                 with attempt:
                     await asyncio.to_thread(store.add_measurement, m)
             self.stored_count += 1
+            log.info(
+                "club #%d %s: %.1f g, BP %.2f in, %s (%.2f points), %s",
+                m.seq, m.club_id or "-", m.total_weight_g, m.balance_point_in, m.swingweight,
+                m.swingweight_points, m.verdict.value,
+            )
             self._alarm_set(AlarmKind.STORAGE_FAILED, "storage", False, "storage recovered")
             self.bus.publish(MeasurementCaptured(m))
 
@@ -388,6 +393,11 @@ class Service:
             await asyncio.sleep(TICK_S)
             now = self._clock()
             self._dispatch(self.pipeline.tick(now))
+            for runtime in self.devices.values():
+                # A quiet device (a scanner) counts as connected once its port is open.
+                session = runtime.session
+                if not runtime.connected and session is not None and session.is_open:
+                    self._device_up(runtime, session)
             if now - last_status >= DEVICE_STATUS_EVERY_S:
                 for runtime in self.devices.values():
                     if runtime.connected:

@@ -116,3 +116,17 @@ def test_heft_run_with_bad_config_exits_2_and_starts_nothing(tmp_path: Path) -> 
     assert proc.returncode == 2
     assert "geometry.position_b_in" in proc.stderr
     assert not db.exists()  # nothing started: no database created
+
+
+EXAMPLE_FILES = sorted((Path(__file__).resolve().parent.parent / "examples").glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", EXAMPLE_FILES, ids=lambda p: p.name)
+def test_shipped_examples_pass_config_check(path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["config", "check", str(path)]) == 0
+    assert "ok" in capsys.readouterr().out
+
+
+def test_there_is_an_example_per_geometry() -> None:
+    kinds = {load_config(p).geometry.type for p in EXAMPLE_FILES}
+    assert kinds == set(GEOMETRIES)
