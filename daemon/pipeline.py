@@ -225,17 +225,15 @@ class BenchPipeline:
             return  # a channel the geometry does not use
         self._last_t = max(self._last_t, r.t_mono_s)
         flags = r.flags
+        if r.usable and math.isfinite(r.value):
+            state.recent.append((r.t_mono_s, r.value))  # raw: calibration windows use counts
         if r.kind is ValueKind.COUNTS:
             record = self.calibrations.get(channel)
-            if not usable(record):
+            if record is None or not usable(record):
                 return  # no span yet: counts cannot become grams (alarm raised by the service)
-            assert record is not None
-            raw = r.value
             value_g = counts_to_g(record, r.value) if math.isfinite(r.value) else math.nan
         else:
-            raw = value_g = r.value
-        if r.usable and math.isfinite(raw):
-            state.recent.append((r.t_mono_s, raw))
+            value_g = r.value
         net_g = value_g - state.tare_g if math.isfinite(value_g) else value_g
         if math.isfinite(net_g):
             self._out.append(LiveReading(self.station, channel, r.t_mono_s, net_g, flags))

@@ -49,10 +49,30 @@ def station_toml(
     station: str = "bench-1",
     extra: str = "",
     capture: str = 'preset_name = "hx711_80hz"\ncapacity_g = 5000',
+    calibrated: bool = True,
 ) -> str:
-    """A two-support station on the simulated beam, calibrated from the beam's definition."""
+    """A two-support station on the simulated beam.
+
+    ``calibrated``: the cells' numbers from the beam's definition (source = "config"); else
+    the database's calibration records (source = "database").
+    """
     d = beam_definition()
     ch0, ch1 = d.channels[0], d.channels[1]
+    if calibrated:
+        channels = f"""\
+[channels."beam/0"]
+source = "config"
+zero_counts = {ch0.offset_counts}
+counts_per_g = {ch0.counts_per_g}
+
+[channels."beam/1"]
+source = "config"
+zero_counts = {ch1.offset_counts}
+counts_per_g = {ch1.counts_per_g}
+"""
+    else:
+        channels = '[channels."beam/0"]\nsource = "database"\n\n[channels."beam/1"]\n'
+        channels += 'source = "database"\n'
     mqtt = (
         f'[mqtt]\nenabled = true\nhost = "127.0.0.1"\nport = {mqtt_port}\n'
         f'topic_root = "{mqtt_root}"\nkeepalive_s = 5\n'
@@ -79,16 +99,7 @@ position_a_in = "4in"
 channel_b = "beam/1"
 position_b_in = "36in"
 
-[channels."beam/0"]
-source = "config"
-zero_counts = {ch0.offset_counts}
-counts_per_g = {ch0.counts_per_g}
-
-[channels."beam/1"]
-source = "config"
-zero_counts = {ch1.offset_counts}
-counts_per_g = {ch1.counts_per_g}
-
+{channels}
 [capture]
 {capture}
 

@@ -12,8 +12,10 @@ import contextlib
 import json
 import signal
 import sys
+import tomllib
 import uuid
 from collections.abc import AsyncIterator
+from datetime import UTC, datetime
 from pathlib import Path
 
 import pytest
@@ -26,7 +28,7 @@ from daemon.mqtt_topics import Topics
 from daemon.replay import replay
 from daemon.service import Service
 from daemon.storage import Store
-from drivers.sim.physics import Placement
+from drivers.sim.physics import Club, Placement
 from drivers.sim.pty_server import PtyDevice
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import collecting, wait_until
@@ -47,6 +49,7 @@ async def bench(
     *,
     broker: Broker | None = None,
     record_dir: Path | None = None,
+    calibrated: bool = True,
 ) -> AsyncIterator[tuple[Service, PtyDevice, list[Event]]]:
     """A simulated beam served on a pty and the service reading it; events collected."""
     root = f"heft-test-{uuid.uuid4().hex[:8]}"
@@ -55,8 +58,8 @@ async def bench(
         db=tmp_path / "heft.db",
         mqtt_port=broker.port if broker is not None else None,
         mqtt_root=root,
+        calibrated=calibrated,
     )
-    import tomllib
 
     config = parse_config(tomllib.loads(text))
     pty = PtyDevice(beam_device(plan), link=tmp_path / "beam").start()
@@ -287,3 +290,50 @@ async def test_kill_9_during_a_burst_keeps_every_acknowledged_measurement(
         stored = {str(m.id) for m in store.measurements()}
     assert len(acknowledged) >= 4
     assert acknowledged <= stored  # every measurement the broker had is in the database
+
+
+async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm(
+    tmp_path: Path,
+) -> None:
+    # Reference masses laid over support a (balance point 4 in), so beam/0 carries them alone.
+    plan = [
+        Placement(Club(200.0, 4.0), 3.0, 6.5),  # the 200 g reference mass
+        Placement(Club(100.0, 4.0), 7.5, 11.0),  # the 100 g check mass
+    ]
+    async with bench(tmp_path, plan, calibrated=False) as (svc, pty, _events):
+        p = svc.pipeline
+        assert p is not None
+        assert p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")  # never spanned
+        await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
+
+        async def at_bench_time(t_s: float) -> None:
+            await wait_until(lambda: pty.bench_time_s() >= t_s, timeout_s=20,
+                             what=f"bench time {t_s} s")
+
+        zero = await svc.handle_command(
+            api.CalibrateZero(command="calibrate_zero", channel="beam/0")
+        )
+        assert zero.ok, zero.message
+        assert "span next" in zero.message
+        await at_bench_time(4.3)
+        span = await svc.handle_command(api.CalibrateSpan(
+            command="calibrate_span", channel="beam/0", mass_g=200.0, weight_class="M1",
+            weight_id="LCW-REF-200"))
+        assert span.ok, span.message
+        record = span.data["calibration"]
+        # The simulated cell has 418.73 counts per gram (hardware_fixtures/sim/beam.json).
+        assert record["counts_per_g"] == pytest.approx(418.73, rel=1e-3)
+        assert record["reference"] == {"mass_g": 200.0, "weight_class": "M1",
+                                       "weight_id": "LCW-REF-200"}
+        assert not p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")
+        assert p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/1")
+        await at_bench_time(8.8)
+        verify = await svc.handle_command(api.VerifyCheckMass(
+            command="verify", channel="beam/0", mass_g=100.0, weight_id="LCW-CHK-100"))
+        assert verify.ok and verify.data["passed"], verify.message
+        assert verify.data["calibration"]["result_g"] == pytest.approx(100.0, abs=0.1)
+        assert svc.store is not None
+        kinds = [r.kind for r in svc.store.calibrations("beam/0")]
+        due = svc.store.calibrations("beam/0")[1].next_due
+    assert kinds == ["zero", "span", "verify"]
+    assert due is not None and (due - datetime.now(UTC).date()).days == 90
