@@ -13,6 +13,7 @@ from textual.pilot import Pilot
 
 from daemon.command_api import Command, Reply, VerifyCheckMass
 from tui.app import HeftDashboard
+from tui.calibration import CalibrationScreen
 from tui.scripted_bench import JOBS, session_events
 from tui.source import ScriptedSource
 
@@ -48,6 +49,16 @@ async def _replayed(pilot: Pilot[Any]) -> None:
     await pilot.pause(0.2)
 
 
+async def _step(pilot: Pilot[Any], step: str) -> None:
+    """Wait until the calibration screen shows ``step``."""
+    for _ in range(200):
+        screen = pilot.app.screen
+        if isinstance(screen, CalibrationScreen) and screen.step == step and not screen.busy:
+            return
+        await pilot.pause(0.02)
+    raise AssertionError(f"calibration never reached {step}")
+
+
 def test_live_screen(snap_compare: Snap) -> None:
     assert snap_compare(_app(), terminal_size=SIZE, run_before=_replayed)
 
@@ -81,13 +92,13 @@ def test_calibration_result_screen(snap_compare: Snap) -> None:
     async def go(pilot: Pilot[Any]) -> None:
         await _replayed(pilot)
         await pilot.press("c")
-        await pilot.pause(0.1)
+        await _step(pilot, "step-pick")
         await pilot.press("enter", "enter")
-        await pilot.pause(0.2)
+        await _step(pilot, "step-span")
         await pilot.press(*"500", "tab", "tab", *"R-500-07", "enter")
-        await pilot.pause(0.2)
+        await _step(pilot, "step-verify")
         await pilot.press(*"200", "enter")
-        await pilot.pause(0.3)
+        await _step(pilot, "step-result")
 
     assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
 
