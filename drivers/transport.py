@@ -154,7 +154,10 @@ class SerialTransport:
         item: bytes | BaseException
         while not self._stop.is_set():
             try:
-                item = port.read(max(1, port.in_waiting))
+                # Block for the first byte, then take whatever else already arrived with it.
+                item = port.read(1)
+                if item and port.in_waiting:
+                    item += port.read(port.in_waiting)
             except (serial.SerialException, OSError, TypeError, AttributeError) as err:
                 # TypeError/AttributeError: pyserial internals after a concurrent close.
                 if self._stop.is_set():

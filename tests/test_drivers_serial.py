@@ -365,3 +365,44 @@ def test_bad_serial_option_names_the_option() -> None:
         SerialTransport("/dev/ttyUSB0", parity="X")
     with pytest.raises(DriverConfigError, match="'stopbits'"):
         open_transport("/dev/ttyUSB0", {"stopbits": 3})
+
+
+async def test_socket_url_reads_a_networked_balance() -> None:
+    """``socket://`` (a serial server on the bench network; here on loopback)."""
+    async def serve(_: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
+        writer.write(b"ST,NT,+00012.30   g\r\n")
+        await writer.drain()
+        await asyncio.sleep(TIMEOUT_S)
+
+    server = await asyncio.start_server(serve, "127.0.0.1", 0)
+    port = server.sockets[0].getsockname()[1]
+    try:
+        driver = create_driver("stream_balance", "net-1")
+        session = DeviceSession("net-1", driver, open_transport(f"socket://127.0.0.1:{port}"))
+        (reading,) = await collect(session, 1)
+    finally:
+        server.close()
+    assert isinstance(reading, Reading) and reading.value == 12.3
+    assert reading.flags.name is not None and "NET" in repr(reading.flags)
+
+
+async def test_hwgrep_without_a_match_is_a_transport_error() -> None:
+    with pytest.raises(TransportError, match="cannot open"):
+        await SerialTransport("hwgrep://ffff:fffe").open()
+
+
+async def test_dtr_off_is_accepted_on_open(pty_device: Callable[..., PtyDevice]) -> None:
+    """``dtr = false`` (no reset of Arduino-style boards) must not break ports without modem
+    lines, such as this pty."""
+    dev = pty_device()
+    transport = open_transport(dev.path, {"baudrate": 115200, "dtr": False, "rts": False})
+    await transport.open()
+    try:
+        dev.write(b"hello\n")
+        got = b""
+        async with asyncio.timeout(TIMEOUT_S):
+            while len(got) < 6:
+                got += await transport.read()
+        assert got == b"hello\n"
+    finally:
+        await transport.close()
