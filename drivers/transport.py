@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import errno
 import importlib
 import logging
 import threading
@@ -143,7 +144,10 @@ class SerialTransport:
             # Whatever queued before we opened (or a half line) is stale.
             port.reset_input_buffer()
         except (serial.SerialException, OSError, ValueError) as err:
-            raise TransportError(f"cannot open {self.description}: {err}") from err
+            hint = ""
+            if getattr(err, "errno", None) == errno.EACCES:
+                hint = " (on Linux: add the user to the 'dialout' group, or add a udev rule)"
+            raise TransportError(f"cannot open {self.description}: {err}{hint}") from err
         return port
 
     def _reader(

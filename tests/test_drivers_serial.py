@@ -406,3 +406,4 @@ async def test_dtr_off_is_accepted_on_open(pty_device: Callable[..., PtyDevice])
         assert got == b"hello\n"
     finally:
         await transport.close()
+
