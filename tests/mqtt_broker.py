@@ -46,6 +46,10 @@ class Broker:
         conf.write_text(
             f"listener {self.port} 127.0.0.1\n"
             "allow_anonymous true\n"
+            # Started as root, mosquitto would switch to its own user and then fail, silently, to
+            # write its log and persistence files in the test's private folder. (No effect when
+            # not started as root.)
+            "user root\n"
             "persistence false\n"
             "max_queued_messages 100000\n"
             f"log_dest file {self.workdir / 'mosquitto.log'}\n"

@@ -23,7 +23,7 @@ from tests.sample_records import make_measurement
 
 @contextlib.asynccontextmanager
 async def historian(
-    broker: Broker, topic: str, may_connect: asyncio.Event
+    broker: Broker, topic: str, may_connect: asyncio.Event | None = None
 ) -> AsyncIterator[list[bytes]]:
     """A plant consumer with a persistent session (MQTT 5 session expiry) that reconnects.
 
@@ -31,12 +31,16 @@ async def historian(
     connects only while ``may_connect`` is set, so a test can keep it away on purpose.
     """
     received: list[bytes] = []
+    if may_connect is None:
+        may_connect = asyncio.Event()
+        may_connect.set()
+    gate = may_connect
 
     async def loop() -> None:
         props = Properties(PacketTypes.CONNECT)
         props.SessionExpiryInterval = 3600
         while True:
-            await may_connect.wait()
+            await gate.wait()
             try:
                 async with aiomqtt.Client(
                     broker.host,
@@ -68,9 +72,7 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
     data_dir.mkdir()
     data_dir.chmod(0o777)  # mosquitto drops to its own user when started as root
     broker.stop()
-    # 'user root': when the tests run as root, mosquitto would otherwise drop to its own user
-    # and could not write into the test's private folder (ignored when not run as root).
-    broker.extra_conf = f"user root\npersistence true\npersistence_location {data_dir}/\n"
+    broker.extra_conf = f"persistence true\npersistence_location {data_dir}/\n"
     broker.start()
 
     bus = EventBus()

@@ -94,7 +94,6 @@ def tls_broker(broker: Broker, tmp_path: Path) -> tuple[Broker, int, Path]:
     tls_port = free_port()
     broker.stop()
     broker.extra_conf = (
-        "user root\n"  # read the test's private folder when run as root (no effect otherwise)
         "allow_anonymous false\n"
         f"password_file {passwords}\n"
         f"listener {tls_port} 127.0.0.1\n"
