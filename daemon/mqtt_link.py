@@ -122,7 +122,7 @@ class MqttLink:
         handle_command: called with each valid command; None refuses commands.
         retry_initial_s: shortest delay between failed connection attempts.
         retry_max_s: longest delay between failed connection attempts.
-        clock: monotonic clock in seconds (the live-reading throttle uses it).
+        clock: monotonic clock in seconds (live-reading throttle, session length).
     """
 
     def __init__(
