@@ -59,7 +59,7 @@ def test_alarm_banner_has_words_and_count() -> None:
     state.apply_all(session_events())
     text = alarm_banner_text(state.unacknowledged())
     assert text.startswith("ALARM")
-    assert "(+1 more)" in text
+    assert text.startswith("ALARM 1 of 2 [a: acknowledge]  DEVICE OFFLINE - scan:")
     assert alarm_banner_text([]) == ""
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 from collections.abc import Awaitable, Callable
 from typing import Any, ClassVar
 
+from rich.text import Text
 from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
@@ -132,7 +133,7 @@ class CalibrationScreen(Screen[None]):
     def _go(self, step: str) -> None:
         self.query_one(ContentSwitcher).current = step
         where = f"  [{self.channel}]" if self.channel else ""
-        self.query_one("#cal-title", Static).update(STEP_TITLES[step] + where)
+        self.query_one("#cal-title", Static).update(Text(STEP_TITLES[step] + where))
         focus = {
             "step-pick": "#cal-channels",
             "step-zero": "#do-zero",
@@ -149,11 +150,11 @@ class CalibrationScreen(Screen[None]):
             return
         value = self.live_value(self.channel)
         shown = "-" if value is None else f"{value:.2f} g"
-        self.query_one("#cal-live", Static).update(f"live reading of {self.channel}: {shown}")
+        self.query_one("#cal-live", Static).update(Text(f"live reading of {self.channel}: {shown}"))
 
     def _message(self, text: str, error: bool = False) -> None:
         msg = self.query_one("#cal-message", Static)
-        msg.update(text)
+        msg.update(Text(text))
         msg.set_class(error, "error")
 
     # -- steps ----------------------------------------------------------------------------
@@ -227,7 +228,7 @@ class CalibrationScreen(Screen[None]):
         next_step = {"calibrate_zero": "step-span", "calibrate_span": "step-verify",
                      "verify": "step-result"}[cmd.command]
         if next_step == "step-result":
-            self.query_one("#cal-result", Static).update("\n".join(self.results))
+            self.query_one("#cal-result", Static).update(Text("\n".join(self.results)))
             self._message("")
         self._go(next_step)
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Sparkline, Static
@@ -42,13 +43,17 @@ class ChannelRow(Horizontal):
         yield Static("-", classes="channel-value")
         yield Sparkline([], summary_function=max, classes="channel-spark")
 
-    def show(self, trace: ChannelTrace) -> None:
+    def show(self, trace: ChannelTrace) -> bool:
+        """Show the trace; False while the row's own widgets are still being mounted."""
+        if not self.query(".channel-value"):
+            return False
         value = "-" if trace.last_value_g is None else f"{trace.last_value_g:9.2f} g"
         word = flag_word(trace.flags)
         cell = self.query_one(".channel-value", Static)
-        cell.update(f"{value} {word}")
+        cell.update(Text(f"{value} {word}"))
         cell.set_class(word in ("OVERLOAD", "UNDERLOAD", "FAULT"), "bad")
         self.query_one(Sparkline).data = list(trace.values_g)
+        return True
 
 
 class ChannelsPanel(Vertical):
@@ -58,7 +63,7 @@ class ChannelsPanel(Vertical):
         yield Static("no live readings yet", classes="empty-note")
 
     def show(self, traces: dict[str, ChannelTrace]) -> bool:
-        """Update the rows; True when a new row was added (it fills on the next call)."""
+        """Update the rows; True when a row is not filled yet (it fills on a later call)."""
         added = False
         note = self.query(".empty-note")
         if traces and note:
@@ -66,7 +71,7 @@ class ChannelsPanel(Vertical):
         for channel, trace in traces.items():
             rows = self.query(f"#{_dom_id(channel)}")
             if rows:
-                rows.first(ChannelRow).show(trace)
+                added |= not rows.first(ChannelRow).show(trace)
             else:
                 self.mount(ChannelRow(channel))  # filled on the next refresh, once composed
                 added = True

@@ -126,9 +126,10 @@ def alarm_banner_text(active_unacknowledged: list[Alarm]) -> str:
         return ""
     first = active_unacknowledged[0]
     more = len(active_unacknowledged) - 1
-    tail = f"  (+{more} more)" if more else ""
+    count = f" 1 of {more + 1}" if more else ""
     kind = ALARM_KIND_WORDS.get(first.kind, first.kind.value)
-    return f"ALARM  {kind.upper()} - {first.source}: {first.message}{tail}   (key a: acknowledge)"
+    # The key hint comes first: a long message is cut at the right edge, the hint never is.
+    return f"ALARM{count} [a: acknowledge]  {kind.upper()} - {first.source}: {first.message}"
 
 
 def alarm_state_word(alarm: Alarm) -> str:

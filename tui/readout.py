@@ -44,7 +44,7 @@ class AlarmBanner(Static):
     def show(self, unacknowledged: list[Alarm]) -> None:
         message = alarm_banner_text(unacknowledged)
         self.display = bool(message)
-        self.update(message)
+        self.update(Text(message))
 
 
 class CaptureLine(Static):
@@ -57,7 +57,7 @@ class CaptureLine(Static):
             return
         self.add_class(capture.state.value)
         detail = f" ({capture.detail})" if capture.detail else ""
-        self.update(f"capture: {CAPTURE_WORDS[capture.state]}{detail}")
+        self.update(Text(f"capture: {CAPTURE_WORDS[capture.state]}{detail}"))
 
 
 class Readout(Vertical):
@@ -97,7 +97,7 @@ class Readout(Vertical):
         )
         parts = [f"#{m.seq}", m.club or "", m.club_id or "", f"job {m.job or '-'}",
                  f"spec {m.spec or '-'}"]
-        self.query_one("#club-line", Static).update("  ".join(p for p in parts if p))
+        self.query_one("#club-line", Static).update(Text("  ".join(p for p in parts if p)))
 
 
 class ToleranceGauge(Widget):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import Static
@@ -141,6 +142,6 @@ class SetView(Vertical):
             + (f" ({', '.join(m.club or '?' for m in fails)})" if fails else "")
             + f"   near limit {len(near)}   measurements {len(measurements)}"
         )
-        self.query_one("#set-summary", Static).update(summary)
+        self.query_one("#set-summary", Static).update(Text(summary))
         self.query_one("#plot-sw", BandPlot).show(measurements)
         self.query_one("#plot-weight", BandPlot).show(measurements)
