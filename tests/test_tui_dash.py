@@ -158,3 +158,23 @@ async def test_station_picker_switches_between_publishing_stations(
             await wait_until(lambda: any(m.seq == 8 for m in app.state.measurements),
                              what="qc-1 measurement after the switch")
             assert all(m.station == "qc-1" for m in app.state.measurements)
+
+
+async def test_dash_reconnects_after_the_broker_restarts(broker: Broker, tmp_path: Path) -> None:
+    settings = settings_for(broker)
+    async with running(Station(settings, "bench-1", tmp_path / "s.db")) as station:
+        app = HeftDashboard(MqttSource(url(broker, settings)))
+        async with app.run_test(size=SIZE):
+            source = app.source
+            assert isinstance(source, MqttSource)
+            await wait_until(source.connected.is_set, what="dashboard connected")
+            station.measure(make_measurement(1, "4i", 409.6, 32.1))
+            await wait_until(lambda: len(app.state.measurements) == 1, what="first measurement")
+            broker.stop()
+            await wait_until(lambda: not source.connected.is_set(), what="dashboard noticed")
+            broker.start()  # same port; nothing retained survives (persistence off)
+            await wait_until(source.connected.is_set, timeout_s=30, what="dashboard reconnected")
+            await wait_until(lambda: station.link.connected, timeout_s=30, what="link back")
+            station.measure(make_measurement(2, "5i", 416.2, 31.8))
+            await wait_until(lambda: len(app.state.measurements) == 2, timeout_s=30,
+                             what="measurement after the restart")
