@@ -71,13 +71,15 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
     assert not workdir.exists()
 
 
-def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
-    done = subprocess.run(
-        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "5"],
-        capture_output=True,
-        text=True,
-        timeout=90,
+def heft(*args: str) -> subprocess.CompletedProcess[str]:
+    """Run the real command line in a fresh interpreter (bounded)."""
+    return subprocess.run(
+        [sys.executable, "-m", "daemon", *args], capture_output=True, text=True, timeout=90
     )
+
+
+def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
+    done = heft("demo", "--headless-seconds", "5")
     assert done.returncode == 0, done.stderr
     summary = done.stdout.splitlines()[0]
     assert "clubs captured" in summary and "ui errors 0" in summary
@@ -88,11 +90,9 @@ def test_heft_demo_command_runs_headless_and_cleans_up() -> None:
 
 
 def test_bad_demo_option_is_refused() -> None:
-    done = subprocess.run(
-        [sys.executable, "-m", "daemon", "demo", "--broker", "http://x"],
-        capture_output=True,
-        text=True,
-        timeout=60,
-    )
+    done = heft("demo", "--broker", "http://x")
     assert done.returncode == 2
     assert "--broker" in done.stderr and "mqtt://" in done.stderr
+    done = heft("dash", "--broker", "mqtt://127.0.0.1:1883", "--station", "bench/1")
+    assert done.returncode == 2
+    assert "--station" in done.stderr and "bench/1" in done.stderr
