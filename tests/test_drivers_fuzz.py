@@ -126,10 +126,15 @@ def test_mutated_beam_frame_never_becomes_a_reading(case: tuple[bytes, bytes]) -
     reference = BeamDriver("fuzz-1").feed(good, 2.0)
     driver = BeamDriver("fuzz-1")
     out = driver.feed(bad, 2.0)
-    # A single edit always changes the XOR, the hex digits or the framing: nothing may come out.
-    assert out == []
-    if bad.strip():  # (a cut at 0 leaves an empty line: nothing to count)
-        assert driver.stats.frame_errors + (driver.stats.noise_bytes > 0) >= 1
+    if out:
+        # Only whitespace added around the frame (it is stripped) may still read, and then
+        # exactly as the original frame did.
+        assert bad.strip() == good.strip()
+        assert essence(out) == essence(reference)
+    else:
+        # Any other single edit changes the XOR, the hex digits or the framing: dropped, counted
+        # (a cut at 0 leaves an empty line: nothing to count).
+        assert driver.stats.frame_errors + (driver.stats.noise_bytes > 0) >= 1 or not bad.strip()
     # ... and the very next good frame is read exactly: the driver has resynchronised.
     assert essence(driver.feed(good, 2.0)) == essence(reference)
 
