@@ -153,19 +153,19 @@ class LineOptions(DriverOptions):
     """A line longer than this without a line end is dropped as a frame error."""
 
 
-def _describe_validation_error(
-    err: ValidationError, device: str, driver: str, model: type[BaseModel]
-) -> str:
-    """One readable sentence per failing option (naming device, option and expected form)."""
+def describe_options_error(err: ValidationError, model: type[BaseModel]) -> str:
+    """One readable clause per failing option: its name, what was expected, what was given."""
     parts: list[str] = []
     for item in err.errors():
         option = ".".join(str(p) for p in item["loc"]) or "(options)"
         if item["type"] == "extra_forbidden":
             valid = ", ".join(sorted(model.model_fields)) or "none"
             parts.append(f"unknown option {option!r} (valid options: {valid})")
+        elif item["type"] == "missing":
+            parts.append(f"option {option!r} is required")
         else:
             parts.append(f"option {option!r}: {item['msg']} (got {item.get('input')!r})")
-    return f"device {device!r} (driver {driver}): " + "; ".join(parts)
+    return "; ".join(parts)
 
 
 class Driver(abc.ABC):
@@ -200,9 +200,8 @@ class Driver(abc.ABC):
         try:
             return model.model_validate(raw)
         except ValidationError as err:
-            raise DriverConfigError(
-                _describe_validation_error(err, self.device, type(self).name, model)
-            ) from None
+            raise DriverConfigError(f"device {self.device!r} (driver {type(self).name}): "
+                                    f"{describe_options_error(err, model)}") from None
 
     # -- input ---------------------------------------------------------------------------------
 

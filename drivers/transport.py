@@ -25,7 +25,7 @@ from typing import Any, Literal, Protocol, runtime_checkable
 import serial
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
-from drivers.base import DriverConfigError, TransportError
+from drivers.base import DriverConfigError, TransportError, describe_options_error
 
 __all__ = [
     "SerialSettings",
@@ -104,10 +104,8 @@ class SerialTransport:
         try:
             self.settings = SerialSettings.model_validate({"baudrate": baudrate, **options})
         except ValidationError as err:
-            detail = "; ".join(
-                f"option {'.'.join(map(str, e['loc']))!r}: {e['msg']} (got {e.get('input')!r})"
-                for e in err.errors())
-            raise DriverConfigError(f"serial port {url!r}: {detail}") from None
+            raise DriverConfigError(
+                f"serial port {url!r}: {describe_options_error(err, SerialSettings)}") from None
         self.url = url
         self.description = f"serial {url} @ {self.settings.baudrate} baud"
         self._serial: serial.SerialBase | None = None

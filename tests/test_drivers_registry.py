@@ -33,7 +33,7 @@ def test_every_registered_driver_loads_with_its_own_name(name: str) -> None:
     ("poll_balance", {"poll_interval_s": 0}, ["'poll_interval_s'", "greater than 0"]),
     ("poll_balance", {"rate": 5}, ["unknown option 'rate'", "mode", "poll_interval_s"]),
     ("stream_balance", {"max_line_bytes": 4}, ["'max_line_bytes'", "greater than or equal to 16"]),
-    ("regex_line", {}, ["'pattern'", "Field required"]),
+    ("regex_line", {}, ["option 'pattern' is required"]),
     ("regex_line", {"pattern": "(?P<value>[0-9"}, ["'pattern'", "not a valid regular expression"]),
     ("regex_line", {"pattern": "[0-9]+"}, ["'pattern'", "(?P<value>"]),
     ("regex_line", {"pattern": "(?P<value>.*)", "default_unit": "stone"},
