@@ -6,7 +6,10 @@ BeamDriver and the host's commands through the firmware's parser.
 
 from __future__ import annotations
 
+import importlib
 import py_compile
+import sys
+import types
 from pathlib import Path
 
 import pytest
@@ -128,3 +131,108 @@ def test_framing_has_no_cpython_only_imports() -> None:
     """framing.py must load on the board: it imports nothing at all."""
     source = (FIRMWARE / "framing.py").read_text()
     assert not [ln for ln in source.splitlines() if ln.startswith(("import ", "from "))]
+
+
+# --- hx711.py against a simulated HX711 (the chip cannot be on a CI machine) -------------------
+
+
+class SimHX711:
+    """An HX711 as its datasheet describes the serial interface (from memory): DOUT low = data
+    ready; each PD_SCK rising edge shifts out the next bit, MSB first; after the 24th bit DOUT
+    goes high; the total pulse count (25/26/27) picks gain 128 / 32 / 64 for the next sample."""
+
+    def __init__(self, word: int) -> None:
+        self.word, self.pulses, self.dout = word & 0xFFFFFF, 0, 0
+
+    def rising_edge(self) -> None:
+        self.pulses += 1
+        self.dout = (self.word >> (24 - self.pulses)) & 1 if self.pulses <= 24 else 1
+
+
+class SimBoard:
+    def __init__(self, sck: int, chips: dict[int, SimHX711]) -> None:
+        self.sck, self.chips, self.levels = sck, chips, {sck: 0}
+        self.irq_disabled = 0
+
+    def machine_module(self) -> types.ModuleType:
+        board = self
+
+        class Pin:
+            IN, OUT, PULL_UP = 0, 1, 2
+
+            def __init__(self, pin: int, mode: int = -1, pull: int = -1, *,
+                         value: int | None = None) -> None:
+                self.pin = pin
+                if value is not None:
+                    self.value(value)
+
+            def value(self, level: int | None = None) -> int | None:
+                if level is None:
+                    chip = board.chips.get(self.pin)
+                    return chip.dout if chip is not None else board.levels.get(self.pin, 0)
+                if self.pin == board.sck and level and not board.levels[board.sck]:
+                    for chip in board.chips.values():
+                        chip.rising_edge()
+                board.levels[self.pin] = level
+                return None
+
+        def disable_irq() -> int:
+            board.irq_disabled += 1
+            return 7
+
+        def enable_irq(state: int) -> None:
+            assert state == 7
+            board.irq_disabled -= 1
+
+        module = types.ModuleType("machine")
+        module.Pin = Pin  # type: ignore[attr-defined]
+        module.disable_irq = disable_irq  # type: ignore[attr-defined]
+        module.enable_irq = enable_irq  # type: ignore[attr-defined]
+        return module
+
+
+def load_hx711(monkeypatch: pytest.MonkeyPatch, board: SimBoard) -> types.ModuleType:
+    monkeypatch.setitem(sys.modules, "machine", board.machine_module())
+    monkeypatch.syspath_prepend(str(FIRMWARE))
+    for name in ("hx711", "framing"):
+        monkeypatch.delitem(sys.modules, name, raising=False)
+    module = importlib.import_module("hx711")
+    for name in ("hx711", "framing"):  # registered so that teardown removes them again
+        monkeypatch.setitem(sys.modules, name, sys.modules[name])
+    return module
+
+
+@pytest.mark.parametrize(("gain", "pulses"), [(128, 25), (32, 26), (64, 27)])
+def test_bank_reads_two_chips_on_one_clock(
+    monkeypatch: pytest.MonkeyPatch, gain: int, pulses: int
+) -> None:
+    a, b = SimHX711(0x800000), SimHX711(0x001234)
+    board = SimBoard(sck=3, chips={2: a, 4: b})
+    hx711 = load_hx711(monkeypatch, board)
+    bank = hx711.HX711Bank([2, 4], 3, gain=gain)
+    assert bank.ready()
+    assert bank.read() == [-(2**23), 0x1234]
+    assert (a.pulses, b.pulses) == (pulses, pulses)
+    assert not bank.ready()  # DOUT high until the next conversion
+    assert board.irq_disabled == 0 and board.levels[3] == 0  # SCK left low: chips stay awake
+
+
+def test_bank_output_frames_and_parses_on_the_host(monkeypatch: pytest.MonkeyPatch) -> None:
+    board = SimBoard(sck=3, chips={2: SimHX711(0x7FFFFF), 4: SimHX711(0xFFFFFE)})
+    hx711 = load_hx711(monkeypatch, board)
+    counts = hx711.HX711Bank([2, 4], 3).read()
+    out = BeamDriver("beam-1").feed(framing.sample_line(7, 1234, counts), 1.0)
+    assert [(r.value, r.flags) for r in out if isinstance(r, Reading)] == [
+        (float(2**23 - 1), Flag.OVERLOAD), (-2.0, Flag.NONE)]
+
+
+def test_rate_pin_and_bad_gain(monkeypatch: pytest.MonkeyPatch) -> None:
+    board = SimBoard(sck=3, chips={2: SimHX711(0)})
+    hx711 = load_hx711(monkeypatch, board)
+    assert hx711.HX711Bank([2], 3).set_rate(80) is False  # RATE not wired
+    bank = hx711.HX711Bank([2], 3, rate_pin=5)
+    assert bank.set_rate(80) and board.levels[5] == 1
+    assert bank.set_rate(10) and board.levels[5] == 0
+    assert not bank.set_rate(40)
+    with pytest.raises(ValueError):
+        hx711.HX711Bank([2], 3, gain=100)

@@ -14,7 +14,7 @@ import ubinascii
 
 import config
 import framing
-from hx711 import ADC_BITS, HX711
+from hx711 import ADC_BITS, HX711Bank
 
 
 def serial_number():
@@ -23,13 +23,10 @@ def serial_number():
 
 class Beam:
     def __init__(self):
-        self.cells = [
-            HX711(dout, sck, gain=config.GAIN, rate_pin=config.RATE_PIN)
-            for dout, sck in config.CHANNELS
-        ]
+        self.bank = HX711Bank(config.DOUT_PINS, config.SCK_PIN, gain=config.GAIN,
+                              rate_pin=config.RATE_PIN)
         self.rate_hz = config.DEFAULT_RATE_HZ
-        for cell in self.cells:
-            cell.set_rate(self.rate_hz)
+        self.bank.set_rate(self.rate_hz)
         self.seq = 0
         self.clock = framing.MillisClock(time.ticks_ms())
         self.sn = serial_number()
@@ -43,7 +40,7 @@ class Beam:
         self.out.write(line)
 
     def hello(self):
-        self.send(framing.hello_line(config.FIRMWARE_ID, len(self.cells), self.rate_hz,
+        self.send(framing.hello_line(config.FIRMWARE_ID, len(config.DOUT_PINS), self.rate_hz,
                                      ADC_BITS, self.sn))
 
     def handle(self, line):
@@ -57,7 +54,7 @@ class Beam:
             self.hello()
         elif name == "RATE":
             hz = int(arg)
-            if all(cell.set_rate(hz) for cell in self.cells):
+            if self.bank.set_rate(hz):
                 self.rate_hz = hz
                 self.send(framing.ok_line("RATE %d" % hz))
                 self.hello()
@@ -76,18 +73,12 @@ class Beam:
             for line in self.commands.feed(data):
                 self.handle(line)
 
-    def sample_ready(self):
-        for cell in self.cells:
-            if not cell.ready():
-                return False
-        return True
-
     def run(self):
         self.hello()
         while True:
             self.read_host()
-            if self.sample_ready():
-                counts = [cell.read() for cell in self.cells]
+            if self.bank.ready():
+                counts = self.bank.read()
                 t_ms = self.clock.update(time.ticks_ms(), time.ticks_diff)
                 self.send(framing.sample_line(self.seq, t_ms, counts))
                 self.seq = (self.seq + 1) % framing.SEQ_MODULO
