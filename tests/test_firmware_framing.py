@@ -195,11 +195,10 @@ def load_hx711(monkeypatch: pytest.MonkeyPatch, board: SimBoard) -> types.Module
     monkeypatch.setitem(sys.modules, "machine", board.machine_module())
     monkeypatch.syspath_prepend(str(FIRMWARE))
     for name in ("hx711", "framing"):
-        monkeypatch.delitem(sys.modules, name, raising=False)
-    module = importlib.import_module("hx711")
-    for name in ("hx711", "framing"):  # registered so that teardown removes them again
-        monkeypatch.setitem(sys.modules, name, sys.modules[name])
-    return module
+        # setitem remembers the state before (normally: absent), so teardown restores it.
+        monkeypatch.setitem(sys.modules, name, None)  # type: ignore[arg-type]
+        del sys.modules[name]
+    return importlib.import_module("hx711")
 
 
 @pytest.mark.parametrize(("gain", "pulses"), [(128, 25), (32, 26), (64, 27)])
@@ -224,6 +223,10 @@ def test_bank_output_frames_and_parses_on_the_host(monkeypatch: pytest.MonkeyPat
     out = BeamDriver("beam-1").feed(framing.sample_line(7, 1234, counts), 1.0)
     assert [(r.value, r.flags) for r in out if isinstance(r, Reading)] == [
         (float(2**23 - 1), Flag.OVERLOAD), (-2.0, Flag.NONE)]
+
+
+def test_board_modules_do_not_leak_between_tests() -> None:
+    assert "machine" not in sys.modules and "hx711" not in sys.modules
 
 
 def test_rate_pin_and_bad_gain(monkeypatch: pytest.MonkeyPatch) -> None:
