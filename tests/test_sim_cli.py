@@ -32,6 +32,8 @@ def test_list_shows_every_protocol(capsys: pytest.CaptureFixture[str]) -> None:
         (["beam", "--cycle", "0"], "--cycle"),
         (["beam", "--rate", "20"], "--rate"),
         (["beam", "--link", "/nonexistent-dir/heft/beam0"], "--link"),
+        (["beam", "--unit", "oz"], "--unit"),
+        (["stream_balance", "--unit", "stone"], "--unit"),
         (["morse"], "PROTOCOL"),
         ([], "PROTOCOL"),
     ],
@@ -59,10 +61,16 @@ def test_a_definition_of_another_spec_is_refused(
     assert "spec 3 is not supported; this heft reads spec 1" in capsys.readouterr().err
 
 
+def _interactive() -> None:
+    # A shell without job control starts background jobs with SIGINT ignored, and Python keeps
+    # an ignored SIGINT ignored; give the child the default a person at a terminal has.
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def _start(args: list[str]) -> subprocess.Popen[str]:
     return subprocess.Popen(
         [sys.executable, "-m", "daemon.cli", "simulate", *args],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, preexec_fn=_interactive,
     )
 
 
@@ -87,12 +95,27 @@ def test_serves_a_beam_on_the_printed_port_until_ctrl_c(tmp_path: Path) -> None:
                 got.append(port.readline())
             assert any(x.startswith(b"#HELLO heft-beam/1") for x in got)
         proc.send_signal(signal.SIGINT)
-        assert proc.wait(timeout=10) == 0
+        assert proc.wait(timeout=20) == 0
         assert not link.exists()
     finally:
         if proc.poll() is None:
             proc.kill()
             proc.wait()
+
+
+def test_unit_option_sets_the_display_unit(tmp_path: Path) -> None:
+    link = tmp_path / "sb"
+    proc = _start(["stream_balance", "--unit", "oz", "--link", str(link), "--duration", "8"])
+    try:
+        assert proc.stdout is not None
+        proc.stdout.readline()
+        with serial.Serial(str(link), timeout=2) as port:
+            port.readline()  # maybe cut by the flush on open
+            assert port.readline().endswith(b"  oz\r\n")
+    finally:
+        proc.send_signal(signal.SIGTERM)
+        assert proc.wait(timeout=20) == 0
+        assert not link.exists()  # SIGTERM also stops it cleanly
 
 
 def test_duration_stops_by_itself() -> None:

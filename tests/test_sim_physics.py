@@ -204,3 +204,21 @@ def test_cycle_placements_repeat_with_seeded_bumps() -> None:
             assert p.t_on_s < t_b < p.t_off_s
     tl = BenchTimeline(SingleScale(), ps)
     assert tl.active_index(9.5) == 2 and tl.active_index(12.0) is None
+
+
+def test_a_script_can_grow_while_it_runs() -> None:
+    tl = BenchTimeline(TwoSupports(), [])
+    assert tl.forces_at(1.0) == {0: 0.0, 1: 0.0}
+    tl.place(CLUB, 1.0)
+    assert tl.forces_at(10.0)[1] == pytest.approx(310.78125, abs=1e-6)
+    with pytest.raises(ValueError, match="before the one"):
+        tl.place(CLUB, 12.0)  # the first club is still on the bench
+    tl.bump(11.0, 30.0)
+    (truth,) = tl.truth(0.05)  # not lifted yet: ground truth looks 30 s ahead
+    assert truth.settled_at_s is not None and 11.0 < truth.settled_at_s < 14.0
+    tl.lift(15.0)
+    assert tl.forces_at(15.5) == {0: 0.0, 1: 0.0}
+    tl.place(Club(410.0, 29.0, "LCW-0002"), 16.0, 19.0)
+    assert tl.club_at(17.0) is not None and tl.club_at(17.0).club_id == "LCW-0002"  # type: ignore[union-attr]
+    with pytest.raises(ValueError, match="no club on the bench at 20"):
+        tl.bump(20.0, 5.0)

@@ -250,3 +250,30 @@ def test_end_to_end_scanner_driver(tmp_path: Path) -> None:
                           lambda out: any(isinstance(o, ClubTag) for o in out), tmp_path)
     tags = [o for o in outputs if isinstance(o, ClubTag)]
     assert tags[0].club_id == "LCW-0042"
+
+
+def test_a_club_placed_and_lifted_live_on_two_scales_sharing_one_bench_clock(
+    tmp_path: Path,
+) -> None:
+    """Two stream balances under the two supports of one bench, one shared clock and script."""
+    bench = BenchTimeline(TwoSupports(4.0, 36.0), [], QUIET)
+    base = builtin_definition("stream_balance").model_copy(update={"noise_g": 0.0})
+    butt = make_device(base.model_copy(update={"name": "butt", "bench_channel": 0}), bench)
+    head = make_device(base.model_copy(update={"name": "head", "bench_channel": 1}), bench)
+    origin = time.monotonic()
+    with PtyDevice(butt, link=tmp_path / "butt", origin_s=origin) as pa, \
+            PtyDevice(head, link=tmp_path / "head", origin_s=origin) as pb, \
+            _open(pa.path) as port_a, _open(pb.path) as port_b:
+        bench.place(CLUB, pa.bench_time_s() + 0.1)
+
+        def settled_on(value: bytes) -> object:
+            return lambda ls: ls[-1].startswith(b"ST,GS,+00" + value)
+
+        # Two-support statics (test_sim_physics): 79.21875 g and 310.78125 g.
+        assert _lines_until(port_a, settled_on(b"079.22"))
+        assert _lines_until(port_b, settled_on(b"310.78"))
+        bench.lift(pa.bench_time_s())
+        assert _lines_until(port_a, settled_on(b"000.00"))
+        assert _lines_until(port_b, settled_on(b"000.00"))
+    with pytest.raises(ValueError, match="no club on the bench"):
+        bench.bump(pa.bench_time_s(), 10.0)

@@ -10,7 +10,9 @@ import argparse
 import dataclasses
 import json
 import random
+import signal
 import sys
+import threading
 import time
 from pathlib import Path
 from typing import Any
@@ -25,7 +27,7 @@ from drivers.sim.definitions import (
     builtin_definition,
     load_definition,
 )
-from drivers.sim.devices import make_device
+from drivers.sim.devices import ScaleDevice, make_device
 from drivers.sim.physics import (
     BenchTimeline,
     Club,
@@ -38,6 +40,7 @@ from drivers.sim.pty_server import PtyDevice
 
 _DEFAULT_GEOMETRY = {"beam": "two_support"}  # everything else: one scale
 _LIST_WIDTH = 16
+_UNITS = ("g", "kg", "oz", "lb", "ct")
 
 
 def _mass(text: str) -> float:
@@ -113,6 +116,7 @@ def register(subparsers: Any) -> None:
     p.add_argument(
         "--channel", type=int, default=0, help="bench channel a one-channel scale sits under"
     )
+    p.add_argument("--unit", choices=_UNITS, help="display unit of a gram scale (default g)")
     p.add_argument("--cycle", type=_positive, default=6.0, metavar="SECONDS", help="default 6")
     p.add_argument("--bump-every", type=int, default=0, metavar="N", help="bump every Nth club")
     p.add_argument("--duration", type=_positive, metavar="SECONDS", help="stop after this long")
@@ -199,31 +203,44 @@ def run(args: argparse.Namespace) -> int:
     if args.bump_every < 0:
         parser.error("--bump-every: expected 0 (never) or a positive count")
     proto = args.protocol or "beam"
+    if args.unit is not None and proto in ("beam", "scanner"):
+        parser.error(f"--unit: a {proto} has no display unit; only gram scales do")
     kind = args.geometry or _DEFAULT_GEOMETRY.get(proto, "single")
     try:
         definition = _fit_definition(_definition(args, kind), args)
         geometry = _geometry(args, kind)
         timeline = BenchTimeline(geometry, _script(args))
         device = make_device(definition, timeline, seed=args.seed)
+        if args.unit is not None and isinstance(device, ScaleDevice):
+            device.set_unit(args.unit)
     except (DefinitionError, ValueError) as err:
         print(f"heft simulate: {err}", file=sys.stderr)
         return 2
-    with PtyDevice(device, link=args.link) as served:
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _interrupt)  # stop as cleanly as on Ctrl-C
+    served = PtyDevice(device, link=args.link)
+    try:
+        served.start()
         print(f"{definition.protocol} device {definition.name!r} on {served.port}")
         if served.link is not None:
             print(f"link {served.link} -> {served.port}")
         print(f"driver config: {json.dumps(_config_hint(definition, served.path))}")
         print("serving; Ctrl-C to stop", flush=True)
         deadline = time.monotonic() + args.duration if args.duration else None
-        try:
-            while deadline is None or time.monotonic() < deadline:
-                time.sleep(0.2)
-                if served.error is not None:
-                    print(f"heft simulate: server stopped: {served.error}", file=sys.stderr)
-                    return 1
-        except KeyboardInterrupt:
-            pass
+        while deadline is None or time.monotonic() < deadline:
+            time.sleep(0.2)
+            if served.error is not None:
+                print(f"heft simulate: server stopped: {served.error}", file=sys.stderr)
+                return 1
+    except KeyboardInterrupt:
+        pass
+    finally:
+        served.close()
     return 0
+
+
+def _interrupt(signum: int, frame: object) -> None:
+    raise KeyboardInterrupt
 
 
 def _config_hint(definition: AnyDefinition, port: str) -> dict[str, Any]:

@@ -24,6 +24,7 @@ the sensor, not of the club.
 from __future__ import annotations
 
 import bisect
+import dataclasses
 import itertools
 import math
 import random
@@ -32,6 +33,8 @@ from dataclasses import dataclass, field
 from typing import Literal, Protocol
 
 FULCRUM_IN = 14.0  # the Lorythmic fulcrum, inches from the butt (domain.md)
+
+_OPEN_HORIZON_S = 30.0  # how far ground truth looks for a club not yet lifted
 
 Channel = int
 GeometryKind = Literal["two_support", "lever", "single"]
@@ -236,7 +239,10 @@ def placement_force_g(
 class BenchTimeline:
     """A geometry with a script of placements: ``forces_at(t)`` per channel, noise-free.
 
-    Placements must not overlap (one club at a time, as on a real bench).
+    Placements must not overlap (one club at a time, as on a real bench). A script can also
+    grow while a device reads it (``place``, ``lift``, ``bump``), e.g. a test laying a club on
+    a simulated bench served on a pty: each change swaps one tuple, so a reader in another
+    thread sees either the old script or the new one, never half of it.
     """
 
     geometry: Geometry
@@ -246,50 +252,97 @@ class BenchTimeline:
     def __post_init__(self) -> None:
         ordered = sorted(self.placements, key=lambda p: p.t_on_s)
         for a, b in itertools.pairwise(ordered):
-            if b.t_on_s < a.t_off_s + self.dynamics.lift_ramp_s:
-                raise ValueError(
-                    f"placement at {b.t_on_s} s starts before the one at {a.t_on_s} s is lifted"
-                )
-        self.placements = tuple(ordered)
-        self._starts = [p.t_on_s for p in self.placements]
-        self._statics = [self.geometry.static_forces_g(p.club) for p in self.placements]
+            self._check_gap(a, b)
+        self._set(tuple(ordered))
+
+    def _check_gap(self, a: Placement, b: Placement) -> None:
+        if b.t_on_s < a.t_off_s + self.dynamics.lift_ramp_s:
+            raise ValueError(
+                f"placement at {b.t_on_s} s starts before the one at {a.t_on_s} s is lifted"
+            )
+
+    def _set(self, placements: tuple[Placement, ...]) -> None:
+        statics = tuple(self.geometry.static_forces_g(p.club) for p in placements)
+        self._state = (placements, [p.t_on_s for p in placements], statics)
+        self.placements = placements
 
     @property
     def channels(self) -> tuple[Channel, ...]:
         return self.geometry.channels
 
+    def place(
+        self,
+        club: Club,
+        t_on_s: float,
+        t_off_s: float = math.inf,
+        bumps: tuple[tuple[float, float], ...] = (),
+    ) -> Placement:
+        """Lay ``club`` down at ``t_on_s`` (after the previous one is lifted); lift it at
+        ``t_off_s`` or, by default, when ``lift`` is called."""
+        new = Placement(club, t_on_s, t_off_s, bumps)
+        placements = self._state[0]
+        if placements:
+            self._check_gap(placements[-1], new)
+        self._set((*placements, new))
+        return new
+
+    def lift(self, t_off_s: float) -> None:
+        """Lift the last club placed at ``t_off_s``."""
+        placements = self._state[0]
+        if not placements:
+            raise ValueError("no club on the bench to lift")
+        last = placements[-1]
+        self._set((*placements[:-1], dataclasses.replace(last, t_off_s=t_off_s)))
+
+    def bump(self, t_s: float, amplitude_g: float) -> None:
+        """Knock the bench at ``t_s`` while the last club placed lies on it."""
+        placements = self._state[0]
+        if not placements or not placements[-1].t_on_s <= t_s < placements[-1].t_off_s:
+            raise ValueError(f"no club on the bench at {t_s} s to bump")
+        last = placements[-1]
+        bumped = dataclasses.replace(last, bumps=(*last.bumps, (t_s, amplitude_g)))
+        self._set((*placements[:-1], bumped))
+
+    def _active(self, t_s: float) -> tuple[Placement, dict[Channel, float]] | None:
+        placements, starts, statics = self._state
+        i = bisect.bisect_right(starts, t_s) - 1
+        if i >= 0 and t_s < placements[i].t_off_s + self.dynamics.lift_ramp_s:
+            return placements[i], statics[i]
+        return None
+
     def active_index(self, t_s: float) -> int | None:
         """Index of the placement whose force is non-zero at ``t_s`` (or None)."""
-        i = bisect.bisect_right(self._starts, t_s) - 1
-        if i >= 0 and t_s < self.placements[i].t_off_s + self.dynamics.lift_ramp_s:
+        placements, starts, _ = self._state
+        i = bisect.bisect_right(starts, t_s) - 1
+        if i >= 0 and t_s < placements[i].t_off_s + self.dynamics.lift_ramp_s:
             return i
         return None
 
     def forces_at(self, t_s: float) -> dict[Channel, float]:
         """Noise-free force on every channel at ``t_s``, grams."""
-        i = self.active_index(t_s)
-        if i is None:
+        active = self._active(t_s)
+        if active is None:
             return dict.fromkeys(self.channels, 0.0)
-        p = self.placements[i]
-        statics = self._statics[i]
+        p, statics = active
         return {
             ch: placement_force_g(p, statics[ch], self.dynamics, t_s, _share(statics, ch))
             for ch in self.channels
         }
 
     def club_at(self, t_s: float) -> Club | None:
-        i = self.active_index(t_s)
-        return None if i is None else self.placements[i].club
+        active = self._active(t_s)
+        return None if active is None else active[0].club
 
     def truth(self, tolerance_g: float, step_s: float = 0.0005) -> list[PlacementTruth]:
         """Ground truth per placement: static forces and the settle time at ``tolerance_g``.
 
         ``settled_at_s`` is the earliest time from which the noise-free force of every channel
-        stays within ``tolerance_g`` of its static force until lift-off, found on a grid of
-        ``step_s`` (so it is exact to ``step_s``).
+        stays within ``tolerance_g`` of its static force until lift-off (for a club not yet
+        lifted: for the next 30 s), found on a grid of ``step_s`` (so exact to ``step_s``).
         """
+        placements, _, all_statics = self._state
         out: list[PlacementTruth] = []
-        for p, statics in zip(self.placements, self._statics, strict=True):
+        for p, statics in zip(placements, all_statics, strict=True):
             out.append(
                 PlacementTruth(
                     club=p.club,
@@ -312,7 +365,8 @@ def settle_time_s(
     step_s: float = 0.0005,
 ) -> float | None:
     """Earliest grid time after which every channel stays within tolerance until lift-off."""
-    n = math.floor((p.t_off_s - p.t_on_s) / step_s)
+    horizon_s = min(p.t_off_s, p.t_on_s + _OPEN_HORIZON_S) - p.t_on_s
+    n = math.floor(horizon_s / step_s)
     last_bad = -1
     for k in range(n):
         t = p.t_on_s + k * step_s

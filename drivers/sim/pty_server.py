@@ -46,7 +46,10 @@ class PtyDevice:
     Args:
         device: the simulated device (booted when the port opens and on each replug).
         link: optional stable symlink to the current ``/dev/pts/N``.
-        clock: monotonic clock in seconds; the bench clock is ``clock() - start time``.
+        clock: monotonic clock in seconds; the bench clock is ``clock() - origin_s``.
+        origin_s: the ``clock()`` reading that is bench time 0. Default: the moment ``start()``
+            runs. Give several devices the same origin so they share one bench clock (two
+            scales under the two supports of one bench).
         on_frame: called in the server thread with each frame written (for spies and logs).
     """
 
@@ -56,11 +59,13 @@ class PtyDevice:
         *,
         link: str | Path | None = None,
         clock: Callable[[], float] = time.monotonic,
+        origin_s: float | None = None,
         on_frame: Callable[[Frame], None] | None = None,
     ) -> None:
         self.device = device
         self.link = Path(link) if link is not None else None
         self._clock = clock
+        self._origin_s = origin_s
         self._on_frame = on_frame
         self._lock = threading.RLock()
         self._requests: queue.SimpleQueue[tuple[str, threading.Event]] = queue.SimpleQueue()
@@ -104,8 +109,12 @@ class PtyDevice:
         """Open the pty, boot the device and start serving. Returns self."""
         if self._thread is not None:
             raise RuntimeError(f"{self.device.name}: already started")
-        self._t0 = self._clock()
-        self._open(boot_s=0.0)  # exactly 0: the same sample grid as a virtual-time run
+        if self._origin_s is None:
+            self._t0 = self._clock()
+            self._open(boot_s=0.0)  # exactly 0: the same sample grid as a virtual-time run
+        else:
+            self._t0 = self._origin_s
+            self._open()
         self._thread = threading.Thread(
             target=self._serve, name=f"sim-{self.device.name}", daemon=True
         )

@@ -143,6 +143,31 @@ def recording_lines(
     return buffer.getvalue().splitlines()
 
 
+def record_devices(
+    devices: Sequence[SimDevice],
+    until_s: float,
+    *,
+    created_utc: datetime,
+    description: str = "",
+    options: dict[str, dict[str, Any]] | None = None,
+) -> dict[str, list[str]]:
+    """Run ``devices`` in virtual time (``run_virtual``) and return one recording per device.
+
+    ``options`` maps a device name to the driver options written in its header.
+    """
+    frames = run_virtual(devices, until_s)
+    return {
+        dev.name: recording_lines(
+            dev,
+            frames,
+            options=(options or {}).get(dev.name),
+            created_utc=created_utc,
+            description=description,
+        )
+        for dev in devices
+    }
+
+
 def generate_recording(
     scenario: Scenario, seed: int
 ) -> tuple[dict[str, list[str]], list[PlacementTruth]]:
@@ -156,14 +181,10 @@ def generate_recording(
     beam = BeamDevice(scenario.beam, timeline, seed=seed)
     scanner = ScannerDevice(scenario.scanner, timeline, seed=seed)
     end_s = timeline.placements[-1].t_off_s + 1.5 if timeline.placements else 1.0
-    frames = run_virtual([beam, scanner], end_s)
     note = f"{MAKER}, {scenario.station}, job {scenario.job!r}; simulated, seed {seed}"
-    recordings = {
-        dev.name: recording_lines(
-            dev, frames, created_utc=scenario.created_utc, description=note
-        )
-        for dev in (beam, scanner)
-    }
+    recordings = record_devices(
+        [beam, scanner], end_s, created_utc=scenario.created_utc, description=note
+    )
     return recordings, timeline.truth(scenario.truth_tolerance_g)
 
 
