@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 from collections.abc import Callable
+from pathlib import Path
 
 import pytest
 from textual.pilot import Pilot
@@ -19,12 +20,18 @@ from daemon.command_api import (
     SelectJob,
     VerifyCheckMass,
 )
-from daemon.events import EventBus, LiveReading
+from daemon.events import EventBus, LiveReading, MeasurementCaptured
 from drivers.reading import Flag
 from tui.app import HeftDashboard
 from tui.calibration import CalibrationScreen
 from tui.readout import VerdictBanner
-from tui.scripted_bench import JOBS, STATION, out_of_spec_event, session_events
+from tui.scripted_bench import (
+    JOBS,
+    STATION,
+    make_measurement,
+    out_of_spec_event,
+    session_events,
+)
 from tui.source import InProcessSource, ScriptedSource
 
 SIZE = (120, 40)
@@ -262,3 +269,30 @@ async def test_a_crashing_dashboard_does_not_stop_the_service_thread() -> None:
         assert service.thread.is_alive()
     finally:
         service.stop()
+
+
+async def test_in_process_source_on_the_same_loop_with_backfill(tmp_path: Path) -> None:
+    from daemon.storage import Store
+
+    bus = EventBus()
+    store = Store(tmp_path / "bench.db")
+    older = make_measurement(1, "4i", 409.6, 32.1)
+    store.add_measurement(older)  # captured before the dashboard started
+    handled: list[Command] = []
+
+    async def handle(cmd: Command) -> Reply:
+        handled.append(cmd)
+        return Reply(ok=True, command=cmd.command)
+
+    try:
+        app = HeftDashboard(InProcessSource(bus, handle, store))
+        async with app.run_test(size=SIZE) as pilot:
+            await settle(pilot, app, lambda: len(app.state.measurements) == 1)
+            bus.publish(MeasurementCaptured(make_measurement(2, "5i", 416.2, 31.8)))
+            await settle(pilot, app, lambda: len(app.state.measurements) == 2)
+            assert [m.seq for m in app.state.measurements] == [1, 2]
+            await pilot.press("r")
+            await settle(pilot, app, lambda: bool(handled))
+            assert handled == [Rearm(command="rearm")]
+    finally:
+        store.close()

@@ -201,8 +201,7 @@ class InProcessSource(EventSource):
 
     async def start(self) -> None:
         ui_loop = asyncio.get_running_loop()
-        inbox = self.inbox  # create it on the UI loop
-        del inbox
+        _ = self.inbox  # created here, on the dashboard's loop, before any delivery
         if self._service_loop is None or self._service_loop is ui_loop:
             self._forwarder = asyncio.create_task(self._forward(None))
         else:
