@@ -14,6 +14,7 @@ import signal
 import sys
 import threading
 import time
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -43,24 +44,23 @@ _LIST_WIDTH = 16
 _UNITS = ("g", "kg", "oz", "lb", "ct")
 
 
-def _mass(text: str) -> float:
-    try:
-        value = parse_quantity(text, kind="mass")
-    except UnitError as err:
-        raise argparse.ArgumentTypeError(str(err)) from None
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive mass")
-    return value
+def _positive_quantity(kind: str) -> Callable[[str], float]:
+    """An argparse type: a positive mass (grams) or length (inches) with or without a unit."""
+
+    def parse(text: str) -> float:
+        try:
+            value = parse_quantity(text, kind=kind)
+        except UnitError as err:
+            raise argparse.ArgumentTypeError(str(err)) from None
+        if value <= 0:
+            raise argparse.ArgumentTypeError(f"{text!r} must be a positive {kind}")
+        return value
+
+    return parse
 
 
-def _length(text: str) -> float:
-    try:
-        value = parse_quantity(text, kind="length")
-    except UnitError as err:
-        raise argparse.ArgumentTypeError(str(err)) from None
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive length")
-    return value
+_mass = _positive_quantity("mass")
+_length = _positive_quantity("length")
 
 
 def _positive(text: str) -> float:
