@@ -294,3 +294,22 @@ def test_bad_fields_are_named() -> None:
         parse_definition({"spec": 1, "protocol": "scanner", "name": "s", "wobble": 1})
     with pytest.raises(DefinitionError, match="no device definition 'nope'"):
         builtin_definition("nope")
+
+
+def test_regex_line_scale_streams_or_answers_its_poll_string() -> None:
+    d = builtin_definition("regex_line").model_copy(update={"noise_g": 0.0})
+    dev = make_device(d, _single())
+    dev.boot(0.0)
+    frames = dev.advance(4.0)
+    assert len(frames) == 21  # 5 lines/s from 0 to 4.0 s inclusive
+    assert frames[-1][1] == b"WT ST     390.0 g\r\n"
+    pattern = re.compile(d.driver_options["pattern"])  # type: ignore[union-attr]
+    assert all(pattern.fullmatch(f.decode().rstrip("\r\n")) for _, f in frames)
+    polled = make_device(d.model_copy(update={"poll": "P", "terminator": "\n"}), _single())
+    polled.boot(0.0)
+    assert polled.advance(4.0) == []
+    assert _texts(polled.command(b"P", 4.0)) == ["WT ST     390.0 g\n"]
+    assert polled.command(b"Q", 4.0) == []
+    heavy = make_device(d.model_copy(update={"capacity_g": 200.0}), _single())
+    heavy.boot(0.0)
+    assert heavy.advance(4.0)[-1][1] == b"WT OL\r\n"

@@ -42,7 +42,7 @@ class _Base(BaseModel):
     model: str = "heft-sim"
     firmware: str = "sim-1.0"
     serial_number: str = "SIM0001"
-    rate_hz: float = Field(gt=0, le=1000, description="samples (or lines) per second")
+    rate_hz: float = Field(gt=0, le=10000, description="samples (or lines) per second")
 
 
 class _ScaleBase(_Base):
@@ -90,7 +90,7 @@ class BeamChannelDef(BaseModel):
 
 class BeamDef(_Base):
     protocol: Literal["beam"]
-    rate_hz: float = Field(80, gt=0, le=1000)
+    rate_hz: float = Field(80, gt=0, le=10000)
     allowed_rates_hz: tuple[int, ...] = (10, 80)
     adc_bits: int = Field(24, ge=8, le=32)
     channels: tuple[BeamChannelDef, ...] = Field(min_length=1)
