@@ -321,7 +321,7 @@ class Listener:
     async def _loop(self) -> None:
         props = None
         if self.persistent:
-            props = Properties(PacketTypes.CONNECT)
+            props = Properties(PacketTypes.CONNECT)  # type: ignore[no-untyped-call]
             props.SessionExpiryInterval = 3600
         first = True
         while True:
