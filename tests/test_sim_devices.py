@@ -17,6 +17,7 @@ from drivers.sim.definitions import (
     ScannerDef,
     StreamBalanceDef,
     builtin_definition,
+    builtin_of,
     load_definition,
     parse_definition,
 )
@@ -294,6 +295,9 @@ def test_bad_fields_are_named() -> None:
         parse_definition({"spec": 1, "protocol": "scanner", "name": "s", "wobble": 1})
     with pytest.raises(DefinitionError, match="no device definition 'nope'"):
         builtin_definition("nope")
+    assert builtin_of("beam_1ch", BeamDef).channels[0].bench_channel == 0
+    with pytest.raises(DefinitionError, match="'scanner' is a scanner device, expected BeamDef"):
+        builtin_of("scanner", BeamDef)
 
 
 def test_regex_line_scale_streams_or_answers_its_poll_string() -> None:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import Annotated, Any, Final, Literal
+from typing import Annotated, Any, Final, Literal, TypeVar
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
@@ -94,7 +94,10 @@ class BeamDef(_Base):
     allowed_rates_hz: tuple[int, ...] = (10, 80)
     adc_bits: int = Field(24, ge=8, le=32)
     channels: tuple[BeamChannelDef, ...] = Field(min_length=1)
-    capacity_g: float = Field(5000.0, gt=0, description="rated capacity of each cell")
+    capacity_g: float = Field(
+        5000.0, gt=0, description="rated capacity of each cell (informational: the ADC range "
+        "decides where counts saturate)"
+    )
     noise_g: float = Field(0.0, ge=0)
     drift_g_per_s: float = 0.0
     boot_banner: tuple[str, ...] = ()
@@ -119,6 +122,7 @@ DeviceDefinition = Annotated[
 _ADAPTER: Final[TypeAdapter[DeviceDefinition]] = TypeAdapter(DeviceDefinition)
 
 AnyDefinition = PollBalanceDef | StreamBalanceDef | RegexLineDef | BeamDef | ScannerDef
+_D = TypeVar("_D", PollBalanceDef, StreamBalanceDef, RegexLineDef, BeamDef, ScannerDef)
 
 
 def parse_definition(data: Any, *, source: str = "<definition>") -> AnyDefinition:
@@ -164,3 +168,13 @@ def builtin_definition(name: str) -> AnyDefinition:
         known = sorted(p.stem for p in DEFINITIONS_DIR.glob("*.json"))
         raise DefinitionError(f"no device definition {name!r}; shipped: {', '.join(known)}")
     return load_definition(path)
+
+
+def builtin_of(name: str, kind: type[_D]) -> _D:
+    """``builtin_definition`` checked to be of ``kind`` (e.g. ``BeamDef``)."""
+    definition = builtin_definition(name)
+    if not isinstance(definition, kind):
+        raise DefinitionError(
+            f"definition {name!r} is a {definition.protocol} device, expected {kind.__name__}"
+        )
+    return definition

@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.recording import Chunk, RecordingHeader, RecordingWriter
-from drivers.sim.definitions import BeamDef, ScannerDef, builtin_definition
+from drivers.sim.definitions import BeamDef, ScannerDef, builtin_of
 from drivers.sim.devices import BeamDevice, ScannerDevice, SimDevice
 from drivers.sim.physics import (
     BenchTimeline,
@@ -83,8 +83,8 @@ def larkspur_irons() -> Scenario:
         job="LCW-2611 irons 4-PW",
         clubs=tuple((label, Club(w, bp, cid)) for label, cid, w, bp in LARKSPUR_IRONS),
         geometry=TwoSupports(support_a_in=4.0, support_b_in=36.0),
-        beam=builtin_definition("beam").model_copy(update={"rate_hz": 80}),  # type: ignore[arg-type]
-        scanner=builtin_definition("scanner"),  # type: ignore[arg-type]
+        beam=builtin_of("beam", BeamDef).model_copy(update={"rate_hz": 80}),
+        scanner=builtin_of("scanner", ScannerDef),
         bumped=("LCW-2611-6I",),
     )
 
