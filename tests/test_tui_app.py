@@ -296,3 +296,22 @@ async def test_in_process_source_on_the_same_loop_with_backfill(tmp_path: Path) 
             assert handled == [Rearm(command="rearm")]
     finally:
         store.close()
+
+
+async def test_bell_rings_on_fail_and_new_alarm_only_when_enabled() -> None:
+    source = ScriptedSource(session_events(clubs=3))  # 4i-6i pass; two alarms raised at start
+    app = HeftDashboard(source, bell=True)
+    rings: list[str] = []
+    app.bell = lambda: rings.append("ring")  # type: ignore[method-assign]
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 3 and app.refreshes > 1)
+        await pilot.pause(0.2)
+        assert rings == ["ring"]  # the two alarms arrived together: one ring, no ring for PASS
+        source.push(out_of_spec_event())
+        await settle(pilot, app, lambda: len(rings) == 2)
+        await pilot.press("b")  # bell off
+        source.push(out_of_spec_event(seq=100))
+        await settle(pilot, app, lambda: app.state.last_measurement is not None
+                     and app.state.last_measurement.seq == 100)
+        await pilot.pause(0.3)
+        assert len(rings) == 2

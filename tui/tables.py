@@ -45,8 +45,9 @@ class _Table(DataTable[str | Text]):
 
 
 class MeasurementsTable(_Table):
-    COLUMNS = ("#", "time UTC", "club", "club id", "swing wt", "± pt", "total g", "BP in",
-               "moment g·in", "verdict")
+    # The verdict comes early so that a narrow terminal still shows it.
+    COLUMNS = ("#", "time UTC", "club", "verdict", "swing wt", "± pt", "total g", "BP in",
+               "moment g·in", "club id")
 
     def show(self, measurements: Iterable[Measurement], limit: int = 100) -> None:
         newest_first = list(measurements)[::-1][:limit]
@@ -57,13 +58,13 @@ class MeasurementsTable(_Table):
                     str(m.seq),
                     m.time_utc.strftime("%H:%M:%S"),
                     m.club or "-",
-                    m.club_id or "-",
+                    Text(VERDICT_WORDS[m.verdict], style=VERDICT_STYLE[m.verdict]),
                     m.swingweight,
                     _num(m.swingweight_points_u, 2),
                     f"{m.total_weight_g:.1f}",
                     f"{m.balance_point_in:.2f}",
                     f"{m.moment_g_in:.0f}",
-                    Text(VERDICT_WORDS[m.verdict], style=VERDICT_STYLE[m.verdict]),
+                    m.club_id or "-",
                 ),
             )
             for m in newest_first
