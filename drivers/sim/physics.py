@@ -32,6 +32,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Literal, Protocol
 
+from daemon.physics.swingweight import moment_about_g_in
+
 FULCRUM_IN = 14.0  # the Lorythmic fulcrum, inches from the butt (domain.md)
 
 _OPEN_HORIZON_S = 30.0  # how far ground truth looks for a club not yet lifted
@@ -57,7 +59,7 @@ class Club:
     @property
     def moment14_g_in(self) -> float:
         """Moment about the 14-inch fulcrum: W * (BP - 14) (domain.md)."""
-        return self.total_weight_g * (self.balance_point_in - FULCRUM_IN)
+        return moment_about_g_in(self.total_weight_g, self.balance_point_in, FULCRUM_IN)
 
 
 class Geometry(Protocol):
@@ -119,7 +121,7 @@ class FulcrumLever:
         return (0,)
 
     def static_forces_g(self, club: Club) -> dict[Channel, float]:
-        moment = club.total_weight_g * (club.balance_point_in - self.fulcrum_in)
+        moment = moment_about_g_in(club.total_weight_g, club.balance_point_in, self.fulcrum_in)
         return {0: moment / self.lever_arm_in}
 
 
