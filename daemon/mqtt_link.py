@@ -22,6 +22,7 @@ import contextlib
 import json
 import logging
 import math
+import socket
 import time
 from collections import deque
 from collections.abc import Awaitable, Callable, Coroutine
@@ -251,6 +252,10 @@ class MqttLink:
             # Bounds every publish/subscribe; also ends a session wedged by a socket closed
             # under the client mid-handshake (seen when two clients share one id).
             timeout=OPERATION_TIMEOUT_S,
+            # Without TCP_NODELAY, Nagle's algorithm holds a small publish until the broker has
+            # ACKed the previous one (a delayed ACK waits up to 40 ms): measured 48 ms against
+            # 6 ms per measurement (tests/bench/pipeline_bench.py, docs/performance.md).
+            socket_options=((socket.IPPROTO_TCP, socket.TCP_NODELAY, 1),),
         )
 
     async def _connect_and_serve(self) -> None:
