@@ -424,8 +424,17 @@ def check_drivers(config: StationConfig) -> None:
     """Each device's driver exists and accepts its options (the driver's own model says how)."""
     from drivers.base import DriverConfigError
     from drivers.registry import get_driver_class
+    from drivers.transport import USB_HID_SCHEME, SerialSettings
 
     for i, device in enumerate(config.devices):
+        if not device.address.startswith(USB_HID_SCHEME):
+            try:
+                SerialSettings.model_validate(device.transport_options)
+            except ValidationError as err:
+                first = err.errors()[0]
+                where = ".".join(str(p) for p in first["loc"])
+                field = "baudrate" if where == "baudrate" else f"serial.{where}"
+                raise ConfigError(f"devices[{i}].{field}: {_expected(first)}") from None
         try:
             cls = get_driver_class(device.driver)
         except DriverConfigError as err:

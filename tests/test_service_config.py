@@ -60,6 +60,8 @@ def test_metric_positions_convert_to_inches() -> None:
         ('channel_b = "beam/1"', 'channel_b = "scale/1"', "geometry.channel_b", "names no device"),
         ('driver = "beam"', 'driver = "bean"', "devices[0].driver", "valid drivers"),
         ('baudrate = 115200', 'baudrate = -1', "devices[0].baudrate", "greater than 0"),
+        ('baudrate = 115200', 'baudrate = 9600\nserial = { parity = "X" }',
+         "devices[0].serial.parity", "'N', 'E'"),
         ('swingweight = "D2"', 'swingweight = "H2"', "specs.irons-d2.swingweight", "letter"),
         ('2026]\nspec = "irons-d2"', '2026]\nspec = "woods"', "jobs.larkspur-irons-2026.spec",
          "not a spec"),
