@@ -394,9 +394,15 @@ class Service:
             now = self._clock()
             self._dispatch(self.pipeline.tick(now))
             for runtime in self.devices.values():
-                # A quiet device (a scanner) counts as connected once its port is open.
+                # A device allowed to be quiet (a scanner) counts as connected once its port is
+                # open; the others once they have sent something.
                 session = runtime.session
-                if not runtime.connected and session is not None and session.is_open:
+                if (
+                    not runtime.connected
+                    and runtime.config.silence_limit_s is None
+                    and session is not None
+                    and session.is_open
+                ):
                     self._device_up(runtime, session)
             if now - last_status >= DEVICE_STATUS_EVERY_S:
                 for runtime in self.devices.values():

@@ -337,3 +337,56 @@ async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm
         due = svc.store.calibrations("beam/0")[1].next_due
     assert kinds == ["zero", "span", "verify"]
     assert due is not None and (due - datetime.now(UTC).date()).days == 90
+
+
+async def test_a_device_gone_silent_is_offline_after_two_seconds_then_recovers(
+    tmp_path: Path,
+) -> None:
+    plan = placements(LARKSPUR_CLUBS[:1], start_s=60.0)
+    async with bench(tmp_path, plan) as (svc, pty, events):
+        await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
+        with pty.locked() as device:
+            device.silent = True  # the board hangs: port open, no bytes
+        loop = asyncio.get_running_loop()
+        t_silent = loop.time()
+        await wait_until(
+            lambda: alarm_changes(events, AlarmKind.DEVICE_OFFLINE) == [True],
+            timeout_s=15, what="device-offline alarm after silence",
+        )
+        # Noticed by the 2 s silence limit, not before (the upper bound is only a sanity bound).
+        assert 1.9 <= loop.time() - t_silent < 10.0
+        with pty.locked() as device:
+            device.silent = False
+        await wait_until(
+            lambda: alarm_changes(events, AlarmKind.DEVICE_OFFLINE) == [True, False],
+            timeout_s=20, what="device-offline alarm cleared",
+        )
+
+
+async def test_heft_run_stops_cleanly_on_sigterm(tmp_path: Path) -> None:
+    config = tmp_path / "station.toml"
+    config.write_text(station_toml(port=str(tmp_path / "beam"), db=tmp_path / "heft.db"))
+    pty = PtyDevice(beam_device([]), link=tmp_path / "beam").start()
+    proc = await asyncio.create_subprocess_exec(
+        sys.executable, "-m", "daemon", "run", "--config", str(config),
+        stdout=asyncio.subprocess.DEVNULL, stderr=asyncio.subprocess.PIPE,
+    )
+    try:
+        assert proc.stderr is not None
+        seen = b""
+        while b"device beam connected" not in seen:
+            line = await asyncio.wait_for(proc.stderr.readline(), timeout=30)
+            assert line, f"heft run ended early: {seen.decode()}"
+            seen += line
+        proc.send_signal(signal.SIGTERM)
+        rest = await asyncio.wait_for(proc.stderr.read(), timeout=20)
+        await asyncio.wait_for(proc.wait(), timeout=20)
+    finally:
+        if proc.returncode is None:
+            proc.kill()
+            await proc.wait()
+        await asyncio.to_thread(pty.close)
+    assert proc.returncode == 0
+    assert b"Traceback" not in rest
+    with Store(tmp_path / "heft.db") as store:
+        assert store.integrity_check() == "ok"
