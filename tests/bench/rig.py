@@ -212,12 +212,25 @@ def demo_plan(
 
 @dataclass
 class FrameLog:
-    """Write time (monotonic) and bytes of every frame a simulated device sent."""
+    """Every frame a simulated device sent: when it was due, when the write had returned.
 
-    frames: list[tuple[float, bytes]] = field(default_factory=list)
+    ``PtyDevice`` writes each frame at its due time on the bench clock and calls ``on_frame``
+    after the write. ``due_mono`` (the due time on the monotonic clock) is when the bytes were
+    meant to leave; the write happened between that and ``logged_mono`` (a late wake-up of the
+    simulator thread shows as ``logged - due``).
+    """
+
+    frames: list[tuple[float, float, bytes]] = field(default_factory=list)  # logged, due, data
+    t0: float = 0.0  # monotonic time of bench time 0
 
     def on_frame(self, frame: Frame) -> None:
-        self.frames.append((time.monotonic(), frame[1]))
+        self.frames.append((time.monotonic(), frame[0], frame[1]))
+
+    def attach(self, pty: PtyDevice) -> None:
+        self.t0 = time.monotonic() - pty.bench_time_s()
+
+    def due_mono(self, due_bench_s: float) -> float:
+        return self.t0 + due_bench_s
 
 
 def serve_beam(
@@ -231,7 +244,10 @@ def serve_beam(
     """A simulated beam on a pty behind the stable symlink ``link``, already serving."""
     timeline = BenchTimeline(make_geometry("two_support"), list(plan))
     device = make_device(definition, timeline, seed=seed)
-    return PtyDevice(device, link=link, on_frame=log.on_frame if log else None).start()
+    pty = PtyDevice(device, link=link, on_frame=log.on_frame if log else None).start()
+    if log is not None:
+        log.attach(pty)
+    return pty
 
 
 # --------------------------------------------------------------------------- station configs
