@@ -218,6 +218,16 @@ class BenchPipeline:
                 state.recent.clear()
         return self._take()
 
+    def is_loaded(self, channel: str) -> bool:
+        """True while the capture group of ``channel`` has something on its supports."""
+        group = self._group_of.get(channel)
+        return group is not None and group.engine.state in (
+            CaptureState.SETTLING,
+            CaptureState.UNSETTLED,
+            CaptureState.CAPTURED,
+            CaptureState.HOLDING,
+        )
+
     def _on_reading(self, r: Reading) -> None:
         channel = f"{r.device}/{r.channel}"
         state = self._channels.get(channel)

@@ -37,6 +37,7 @@ from daemon.calibration import (
     CalibrationError,
     CountsWindow,
     active_record,
+    counts_to_g,
     default_verify_tolerance_g,
     due_status,
     span_record,
@@ -73,6 +74,7 @@ TICK_S = 0.2
 DEVICE_STATUS_EVERY_S = 1.0
 CALIBRATION_CHECK_EVERY_S = 60.0
 CALIBRATION_WINDOW_S = 1.5
+ZERO_SHIFT_LIMIT_FRACTION = 0.04  # of capacity; OIML R 76-1 4.5.1
 RECONNECT_MAX_WAIT_S = 5.0
 STORE_RETRY_MAX_WAIT_S = 10.0
 MQTT_RETRY_MAX_WAIT_S = 5.0  # a broker back after an outage is found within this long
@@ -555,8 +557,13 @@ class Service:
     async def _calibrate_zero(self, channel: str) -> tuple[str, dict[str, Any]]:
         assert self.pipeline is not None
         channel = self._counts_channel(channel)
+        if self.pipeline.is_loaded(channel):
+            raise CalibrationError(
+                f"{channel} has a load on it; lift the club off and zero with the supports empty"
+            )
         window = await self._window(channel)
         current = self.pipeline.calibrations.get(channel)
+        self._check_zero_shift(channel, window, current)
         record = zero_record(
             self.config.station, channel, window, self._clock_utc(), current,
             self.pipeline.device_info.get(channel.split("/")[0]),
@@ -569,6 +576,24 @@ class Service:
         else:
             text = f"{channel} zero taken ({record.zero_counts:.0f} counts); span next"
         return text, {"calibration": record.model_dump(mode="json")}
+
+    def _check_zero_shift(
+        self, channel: str, window: CountsWindow, current: CalibrationRecord | None
+    ) -> None:
+        """Refuse a new zero that moves the old one by more than 4 % of capacity.
+
+        A zero-setting device may not act on more than 4 % of Max (OIML R 76-1 4.5.1); a larger
+        shift on a calibrated channel means something is resting on the beam, not drift.
+        """
+        if current is None or not usable(current):
+            return  # first zero of a new channel: nothing to compare with
+        shift_g = counts_to_g(current, window.mean_counts)
+        limit_g = ZERO_SHIFT_LIMIT_FRACTION * self.config.capture.capacity_for(channel)
+        if abs(shift_g) > limit_g:
+            raise CalibrationError(
+                f"{channel} reads {shift_g:+.1f} g against its current zero, more than the "
+                f"{limit_g:.0f} g (4 % of capacity) a zero may move; is something on the beam?"
+            )
 
     async def _calibrate_span(self, cmd: api.CalibrateSpan) -> tuple[str, dict[str, Any]]:
         assert self.pipeline is not None

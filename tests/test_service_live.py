@@ -15,7 +15,7 @@ import sys
 import tomllib
 import uuid
 from collections.abc import AsyncIterator
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
 import pytest
@@ -25,6 +25,7 @@ from daemon.config import parse_config
 from daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
 from daemon.measurement import Measurement, Verdict
 from daemon.mqtt_topics import Topics
+from daemon.records import CalibrationRecord
 from daemon.replay import replay
 from daemon.service import Service
 from daemon.storage import Store
@@ -34,6 +35,7 @@ from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import collecting, wait_until
 from tests.service_bench import (
     LARKSPUR_CLUBS,
+    beam_definition,
     beam_device,
     expected_points,
     placements,
@@ -337,6 +339,29 @@ async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm
         due = svc.store.calibrations("beam/0")[1].next_due
     assert kinds == ["zero", "span", "verify"]
     assert due is not None and (due - datetime.now(UTC).date()).days == 90
+
+
+async def test_zero_is_refused_while_a_club_rests_on_the_beam(tmp_path: Path) -> None:
+    # A zero taken under a club would shift every later weight by the club's share.
+    plan = [Placement(Club(405.0, 29.2), 1.0, 60.0)]
+    now = datetime.now(UTC)
+    with Store(tmp_path / "heft.db") as store:  # spanned in the database, as on a real bench
+        for i, ch in enumerate(beam_definition().channels):
+            store.add_calibration(CalibrationRecord(
+                id=f"test-span-{i}", station="bench-1", channel=f"beam/{i}", kind="span",
+                time_utc=now, zero_counts=ch.offset_counts, counts_per_g=ch.counts_per_g,
+                next_due=(now + timedelta(days=90)).date(),
+            ))
+    async with bench(tmp_path, plan, calibrated=False) as (svc, _pty, events):
+        await wait_until(lambda: len(captured(events)) == 1, timeout_s=20, what="a capture")
+        assert svc.store is not None
+        before = len(svc.store.calibrations("beam/1"))
+        reply = await svc.handle_command(
+            api.CalibrateZero(command="calibrate_zero", channel="beam/1")
+        )
+        assert not reply.ok
+        assert "load on it" in reply.message
+        assert len(svc.store.calibrations("beam/1")) == before  # nothing recorded
 
 
 async def test_a_device_gone_silent_is_offline_after_two_seconds_then_recovers(
