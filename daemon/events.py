@@ -32,6 +32,7 @@ class AlarmKind(enum.StrEnum):
     OVERLOAD = "overload"
     WILL_NOT_SETTLE = "will_not_settle"
     ZERO_OUT_OF_RANGE = "zero_out_of_range"
+    NEEDS_ZERO = "needs_zero"  # empty and stable but off zero by more than tracking may follow
     CALIBRATION_DUE = "calibration_due"
     CALIBRATION_OVERDUE = "calibration_overdue"
     STORAGE_FAILED = "storage_failed"

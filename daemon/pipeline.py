@@ -524,4 +524,5 @@ _WARNING_ALARMS: dict[str, AlarmKind] = {
     "will_not_settle": AlarmKind.WILL_NOT_SETTLE,
     "overload": AlarmKind.OVERLOAD,
     "zero_out_of_range": AlarmKind.ZERO_OUT_OF_RANGE,
+    "needs_zero": AlarmKind.NEEDS_ZERO,
 }

@@ -183,3 +183,17 @@ def test_replay_refuses_a_recording_of_another_device(
     assert main(["replay", "--config", str(config), str(rec)]) == 2
     assert "matches no single device" in capsys.readouterr().err
 
+
+
+def test_a_small_load_left_on_the_empty_beam_raises_the_needs_zero_alarm() -> None:
+    # 3 g (a lost ferrule, say) left over the butt support: too light to be a club, too far from
+    # zero for zero tracking (0.5 d, OIML R 76-1 4.5.7) to follow, so the operator must zero.
+    from drivers.sim.physics import Club
+
+    _, events = run_pipeline([Placement(Club(3.0, 4.0), 2.0, 60.0)], 30.0)
+    changes = [
+        (e.alarm.kind, e.alarm.active) for e in events
+        if isinstance(e, AlarmChanged) and e.alarm.kind is AlarmKind.NEEDS_ZERO
+    ]
+    assert changes and changes[0] == (AlarmKind.NEEDS_ZERO, True)
+    assert not measurements(events)

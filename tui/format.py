@@ -47,6 +47,7 @@ ALARM_KIND_WORDS: dict[AlarmKind, str] = {
     AlarmKind.OVERLOAD: "overload",
     AlarmKind.WILL_NOT_SETTLE: "will not settle",
     AlarmKind.ZERO_OUT_OF_RANGE: "zero out of range",
+    AlarmKind.NEEDS_ZERO: "needs zeroing",
     AlarmKind.CALIBRATION_DUE: "calibration due",
     AlarmKind.CALIBRATION_OVERDUE: "calibration overdue",
     AlarmKind.STORAGE_FAILED: "storage failed",
