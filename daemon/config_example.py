@@ -45,7 +45,8 @@ position_b_in = "36in"
 position_u_in = 0.02           # standard uncertainty of each support position (in)
 
 # Load-cell channels turn counts into grams with the database's latest calibration
-# (heft calibrate commands) or with numbers given here (source = "config").
+# (the dashboard's calibration flow, key c, or the calibrate_* MQTT commands)
+# or with numbers given here (source = "config").
 [channels."beam/0"]
 source = "database"
 calibration_interval_days = 90
