@@ -75,6 +75,15 @@ def test_doc_generated_section_is_current() -> None:
     )
 
 
+def test_readme_topic_reference_is_current() -> None:
+    text = (DOC.parent.parent / "README.md").read_text(encoding="utf-8")
+    start = text.index(schema_cmd.README_BEGIN_MARK)
+    end = text.index(schema_cmd.README_END_MARK) + len(schema_cmd.README_END_MARK) + 1
+    assert text[start:end] == schema_cmd.readme_topic_table(), (
+        "README.md's topic table is stale: run `heft schema --update-doc README.md`"
+    )
+
+
 def test_topic_table_covers_every_topic_builder() -> None:
     t = Topics("heft", "bench-1")
     built = {
