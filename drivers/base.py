@@ -86,15 +86,23 @@ class DeviceSilentError(TransportError):
     """The port is open but the device has sent nothing for too long."""
 
 
-_DECIMAL: Final = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)")
-_INTEGER: Final = re.compile(r"[+-]?\d+")
+# ASCII digits only: float() and int() would also take other scripts' digits ("\u0663").
+_DECIMAL: Final = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)")
+_INTEGER: Final = re.compile(r"[+-]?[0-9]+")
 
 
 def parse_decimal(text: str, what: str) -> float:
-    """A plain signed decimal (no exponent, nan, inf, ``_``) or FrameError naming ``what``."""
+    """A plain, finite signed decimal (no exponent, nan, inf, ``_``, ``,``) or FrameError.
+
+    A run of digits too long for a float would come back from ``float()`` as infinity; that is a
+    corrupt frame, not a weight, so it is refused too.
+    """
     if not _DECIMAL.fullmatch(text):
         raise FrameError(f"{what} {text!r} is not a decimal number")
-    return float(text)
+    value = float(text)
+    if not math.isfinite(value):
+        raise FrameError(f"{what} {text[:20]!r}... ({len(text)} characters) is out of range")
+    return value
 
 
 def parse_int(text: str, what: str, low: int, high: int) -> int:
@@ -294,6 +302,9 @@ class Driver(abc.ABC):
             value_g = units.mass_to_g(value, unit) if math.isfinite(value) else value
         except units.UnitError as err:
             raise FrameError(f"unknown unit {unit!r}") from err
+        # "-0.00 g" is zero: adding +0.0 turns IEEE negative zero into zero, so nothing above
+        # shows "-0.0 g".
+        value_g += 0.0
         return Reading(
             device=self.device, channel=channel, t_mono_s=t_mono_s, value=value_g,
             kind=ValueKind.GRAMS, device_unit=unit, flags=flags, raw=raw,
@@ -371,7 +382,9 @@ class LineDriver(Driver):
             start = i + 1
             self._end_of_line(t_mono_s, out)
         self._buf += data[start:]
-        if len(self._buf) > self.options.max_line_bytes:
+        if self._overflowed:  # still inside a line already dropped and counted: discard
+            self._buf.clear()
+        elif len(self._buf) > self.options.max_line_bytes:
             self._bad_frame(
                 FrameError(f"line longer than {self.options.max_line_bytes} bytes"),
                 bytes(self._buf[:80]), t_mono_s)

@@ -7,6 +7,7 @@ A reading is a plain frozen value; nothing below this module knows about the ser
 from __future__ import annotations
 
 import enum
+import math
 from dataclasses import dataclass
 
 
@@ -54,8 +55,9 @@ class Reading:
 
     @property
     def usable(self) -> bool:
-        """False for overload, underload and fault frames: they must never become a weight."""
-        return not (self.flags & (Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT))
+        """False for overload, underload and fault frames and for a value that is not finite."""
+        return math.isfinite(self.value) and not (
+            self.flags & (Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT))
 
 
 @dataclass(frozen=True, slots=True)

@@ -99,10 +99,37 @@ def test_tabs_are_text_other_control_characters_are_not() -> None:
     assert d.feed(b"1\x1b2\n", 1.0) == [] and d.stats.frame_errors == 1
 
 
-@pytest.mark.parametrize("text", ["nan", "inf", "1e3", "1_000", "", "+", ".", "0x10", "1.2.3"])
+def test_endless_line_without_line_end_is_one_error_and_bounded() -> None:
+    """A device streaming bytes with no line end: one error, a bounded buffer, then recovery."""
+    d = GramsLine("bench-1", {"max_line_bytes": 16})
+    d.feed(b"1\n", 0.0)
+    for i in range(100):
+        assert d.feed(b"5" * 100, 1.0 + i) == []
+        assert len(d._buf) <= 16
+    assert d.stats.frame_errors == 1
+    assert [o.value for o in d.feed(b"\n7\n", 200.0)] == [7.0]
+
+
+def test_negative_zero_reads_as_zero() -> None:
+    out = GramsLine("bench-1").feed(b"-0.00\n", 1.0)
+    assert [str(o.value) for o in out] == ["0.0"]  # not "-0.0"
+
+
+# float() would take all of these: other scripts' digits, "_" and "," separators, a digit run
+# too long for a float (it comes back as inf), exponents, nan and inf.
+@pytest.mark.parametrize("text", ["nan", "inf", "-Infinity", "1e3", "1e999", "1_000", "1,234.5",
+                                  "", "+", ".", "0x10", "1.2.3", "\u0663", "12\u00b2",
+                                  "9" * 400])
 def test_parse_decimal_refuses_what_float_would_accept(text: str) -> None:
     with pytest.raises(FrameError):
         parse_decimal(text, "weight")
+
+
+def test_overlong_digit_run_never_becomes_a_reading() -> None:
+    d = GramsLine("bench-1", {"max_line_bytes": 1024})
+    d.feed(b"1\n", 0.0)
+    assert d.feed(b"9" * 400 + b"\n", 1.0) == []
+    assert d.stats.frame_errors == 1 and "out of range" in d.stats.last_error
 
 
 def test_parse_int_range() -> None:

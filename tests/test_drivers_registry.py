@@ -72,7 +72,9 @@ def test_host_commands_encode_per_protocol(
 @pytest.mark.parametrize(("name", "command", "arg"), [
     ("stream_balance", "reboot", None), ("poll_balance", "rate", "10"),
     ("scanner", "zero", None), ("beam", "tare", None), ("beam", "rate", "fast"),
-    ("beam", "rate", None),
+    ("beam", "rate", None), ("beam", "rate", "0"),
+    ("beam", "rate", "\u00b2"),  # str.isdigit() says yes, int() says no: still refused cleanly
+    ("beam", "rate", "\u0663"),  # an Arabic-Indic 3: int() takes it, the board would not
 ])
 def test_unsupported_commands_name_driver_and_command(
     name: str, command: str, arg: str | None

@@ -37,6 +37,7 @@ T_MS_MODULO: Final = 2**32
 _FRAMED: Final = re.compile(rb"([#$])([\x20-\x29\x2b-\x7e]*)\*([0-9A-F]{2})")
 _HELLO_VERSION: Final = re.compile(r"heft-beam/(\d+)(?:\.(\d+))?")
 _HELLO_REQUIRED: Final = ("fw", "ch", "rate", "bits")
+_RATE_ARG: Final = re.compile(r"[0-9]{1,6}")  # ASCII only: str.isdigit() also takes "\u00b2"
 _COMMAND_ECHOES: Final = {"ID": "identify", "RATE": "rate", "REBOOT": "reboot"}
 
 
@@ -89,7 +90,7 @@ class BeamDriver(LineDriver):
         if name == "reboot":
             return b"!REBOOT\n"
         if name == "rate":
-            if arg is None or not arg.strip().isdigit() or int(arg) <= 0:
+            if arg is None or not _RATE_ARG.fullmatch(arg.strip()) or int(arg) <= 0:
                 raise UnsupportedCommand(
                     f"driver beam (device {self.device!r}): 'rate' needs a positive whole "
                     f"number of samples per second, got {arg!r}")
