@@ -281,7 +281,9 @@ class Driver(abc.ABC):
     def _reply(self, reply: CommandReply) -> None:
         """Queue a command reply for the session (``pop_replies``)."""
         self.stats.replies += 1
-        if not reply.ok:
+        if not reply.ok and reply.command == "?":  # not an answer to a known command
+            log.warning("device %r reports an error: %s", self.device, reply.detail)
+        elif not reply.ok:
             log.warning("device %r refused %s: %s", self.device, reply.command, reply.detail)
         self._replies.append(reply)
 

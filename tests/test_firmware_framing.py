@@ -153,6 +153,7 @@ class SimBoard:
     def __init__(self, sck: int, chips: dict[int, SimHX711]) -> None:
         self.sck, self.chips, self.levels = sck, chips, {sck: 0}
         self.irq_disabled = 0
+        self.rises_with_irq_on = 0
 
     def machine_module(self) -> types.ModuleType:
         board = self
@@ -171,6 +172,9 @@ class SimBoard:
                     chip = board.chips.get(self.pin)
                     return chip.dout if chip is not None else board.levels.get(self.pin, 0)
                 if self.pin == board.sck and level and not board.levels[board.sck]:
+                    # PD_SCK high for more than 60 us powers the HX711 down (datasheet, from
+                    # memory): an interrupt landing mid-pulse could stretch it that long.
+                    board.rises_with_irq_on += board.irq_disabled == 0
                     for chip in board.chips.values():
                         chip.rising_edge()
                 board.levels[self.pin] = level
@@ -214,6 +218,39 @@ def test_bank_reads_two_chips_on_one_clock(
     assert (a.pulses, b.pulses) == (pulses, pulses)
     assert not bank.ready()  # DOUT high until the next conversion
     assert board.irq_disabled == 0 and board.levels[3] == 0  # SCK left low: chips stay awake
+    assert board.rises_with_irq_on == 0  # every clock pulse ran with interrupts off
+
+
+def test_bank_names_the_channels_whose_adc_is_not_ready(monkeypatch: pytest.MonkeyPatch) -> None:
+    a, b = SimHX711(5), SimHX711(6)
+    board = SimBoard(sck=3, chips={2: a, 4: b})
+    bank = load_hx711(monkeypatch, board).HX711Bank([2, 4], 3)
+    assert bank.not_ready() == []
+    b.dout = 1  # channel 1 never converts: its DT wire is loose (the pull-up holds it high)
+    assert not bank.ready() and bank.not_ready() == [1]
+
+
+def test_ready_watch_reports_a_dead_adc_once_per_repeat(
+    caplog: pytest.LogCaptureFixture,
+) -> None:
+    """No conversion for timeout_ms: report; then again only every repeat_ms; a sample resets."""
+    watch = framing.ReadyWatch(0, timeout_ms=1000, repeat_ms=5000)
+
+    def diff(a: int, b: int) -> int:
+        return a - b
+
+    due = [t for t in range(0, 12_000, 100) if watch.update(t, diff)]
+    assert due == [1000, 6000, 11000]
+    watch.sample(12_000)
+    assert not watch.update(12_500, diff)
+    assert watch.update(13_000, diff)  # a new fault after a good sample is reported at once
+    driver = BeamDriver("beam-1")
+    out = driver.feed(
+        framing.err_line("ADC not ready ch=1: check HX711 power, DT and SCK wiring"), 1.0)
+    assert out == [] and driver.stats.frame_errors == 0  # a valid frame, not a reading
+    assert [r.getMessage() for r in caplog.records if r.levelname == "WARNING"] == [
+        "device 'beam-1' reports an error: ADC not ready ch=1: check HX711 power, DT and SCK "
+        "wiring"]
 
 
 def test_bank_output_frames_and_parses_on_the_host(monkeypatch: pytest.MonkeyPatch) -> None:

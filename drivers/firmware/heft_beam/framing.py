@@ -123,3 +123,34 @@ class MillisClock:
         self.ms = (self.ms + ticks_diff(ticks_now, self._last)) % T_MS_MODULO
         self._last = ticks_now
         return self.ms
+
+
+class ReadyWatch:
+    """Decides when a board should report that its ADC has stopped converting.
+
+    An HX711 with DOUT unplugged (the pull-up holds it high) or without power never signals
+    "data ready", and the board would fall silent with no hint why. ``update`` is called every
+    pass of the main loop; it returns True when no conversion has arrived for ``timeout_ms`` and
+    the last report is ``repeat_ms`` old, so the host gets one ``#ERR ADC ...`` line per
+    ``repeat_ms`` while the fault lasts, not one per loop.
+    """
+
+    def __init__(self, ticks_now, timeout_ms=1000, repeat_ms=5000):
+        self.timeout_ms = timeout_ms
+        self.repeat_ms = repeat_ms
+        self._last_sample = ticks_now
+        self._last_report = None
+
+    def sample(self, ticks_now):
+        """A conversion was read: the ADC is alive; the next fault is reported at once."""
+        self._last_sample = ticks_now
+        self._last_report = None
+
+    def update(self, ticks_now, ticks_diff):
+        if ticks_diff(ticks_now, self._last_sample) < self.timeout_ms:
+            return False
+        if self._last_report is not None and (
+                ticks_diff(ticks_now, self._last_report) < self.repeat_ms):
+            return False
+        self._last_report = ticks_now
+        return True

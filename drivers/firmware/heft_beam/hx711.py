@@ -37,6 +37,10 @@ class HX711Bank:
                 return False
         return True
 
+    def not_ready(self):
+        """Channels whose DOUT is still high (for the "ADC not ready" report)."""
+        return [i for i, dout in enumerate(self.douts) if dout.value()]
+
     def read(self):
         """One signed 24-bit conversion per chip; call only when ``ready()``."""
         raws = [0] * len(self.douts)

@@ -35,6 +35,10 @@ class Beam:
         self.poll = select.poll()
         self.poll.register(sys.stdin, select.POLLIN)
         self.commands = framing.CommandReader()
+        self.watch = framing.ReadyWatch(time.ticks_ms())
+        # The gain/channel pulses after a read choose the NEXT conversion; the first one after
+        # power-up is always channel A, gain 128, so drop it when another gain is configured.
+        self.skip = 0 if config.GAIN == 128 else 1
 
     def send(self, line):
         self.out.write(line)
@@ -77,12 +81,23 @@ class Beam:
         self.hello()
         while True:
             self.read_host()
+            now = time.ticks_ms()
             if self.bank.ready():
                 counts = self.bank.read()
-                t_ms = self.clock.update(time.ticks_ms(), time.ticks_diff)
+                self.watch.sample(now)
+                if self.skip:
+                    self.skip -= 1
+                    continue
+                t_ms = self.clock.update(now, time.ticks_diff)
                 self.send(framing.sample_line(self.seq, t_ms, counts))
                 self.seq = (self.seq + 1) % framing.SEQ_MODULO
             else:
+                if self.watch.update(now, time.ticks_diff):
+                    # No conversion for a second (a 10 Hz HX711 converts every 100 ms):
+                    # DT or SCK unwired, or the module unpowered. Say so instead of going quiet.
+                    self.send(framing.err_line(
+                        "ADC not ready ch=%s: check HX711 power, DT and SCK wiring"
+                        % ",".join("%d" % i for i in self.bank.not_ready())))
                 time.sleep_ms(1)
 
 
