@@ -30,6 +30,8 @@ def test_list_shows_every_protocol(capsys: pytest.CaptureFixture[str]) -> None:
         (["beam", "--supports", "36in,4in"], "--supports"),
         (["beam", "--geometry", "tripod"], "--geometry"),
         (["beam", "--cycle", "0"], "--cycle"),
+        (["beam", "--duration", "inf"], "--duration"),
+        (["beam", "--rate", "nan"], "--rate"),
         (["beam", "--rate", "20"], "--rate"),
         (["beam", "--link", "/nonexistent-dir/heft/beam0"], "--link"),
         (["beam", "--unit", "oz"], "--unit"),

@@ -7,8 +7,11 @@ speaks its protocol on a pty whose path is printed, and keeps serving until Ctrl
 from __future__ import annotations
 
 import argparse
+import asyncio
+import contextlib
 import dataclasses
 import json
+import math
 import random
 import signal
 import sys
@@ -19,6 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from daemon.units import UnitError, parse_quantity
+from drivers.reading import Flag, Reading
 from drivers.sim.definitions import (
     PROTOCOLS,
     AnyDefinition,
@@ -29,16 +33,21 @@ from drivers.sim.definitions import (
     load_definition,
 )
 from drivers.sim.devices import ScaleDevice, make_device
+from drivers.sim.hid_scale import hid_scale_samples
 from drivers.sim.physics import (
     BenchTimeline,
     Club,
     Geometry,
     Placement,
+    SensorNoise,
     cycle_placements,
     make_geometry,
 )
 from drivers.sim.pty_server import PtyDevice
 
+HID = "hid_pos"
+# Display exponent of the simulated HID scale per unit: 0.1 g, 0.01 oz, 0.001 lb ...
+_HID_EXPONENTS = {"g": -1, "kg": -4, "oz": -2, "lb": -3, "ct": -1}
 _DEFAULT_GEOMETRY = {"beam": "two_support"}  # everything else: one scale
 _LIST_WIDTH = 16
 _UNITS = ("g", "kg", "oz", "lb", "ct")
@@ -68,8 +77,8 @@ def _positive(text: str) -> float:
         value = float(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not value > 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be > 0")
+    if not (value > 0 and math.isfinite(value)):  # float() also takes "inf"
+        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number > 0")
     return value
 
 
@@ -96,7 +105,7 @@ def register(subparsers: Any) -> None:
         "protocol",
         nargs="?",
         metavar="PROTOCOL",
-        help=f"one of: {', '.join(PROTOCOLS)} (see --list)",
+        help=f"one of: {', '.join(PROTOCOLS)} (see --list), or {HID} (read in this process)",
     )
     p.add_argument("--list", action="store_true", help="list the protocols and exit")
     p.add_argument("--definition", type=Path, help="device definition JSON (default: shipped)")
@@ -196,8 +205,11 @@ def run(args: argparse.Namespace) -> int:
         return 0
     if args.protocol is None and args.definition is None:
         parser.error("PROTOCOL is required (or --definition FILE, or --list)")
+    if args.protocol == HID:
+        return _run_hid(args, parser)
     if args.protocol is not None and args.protocol not in PROTOCOLS:
-        parser.error(f"PROTOCOL {args.protocol!r} unknown; expected one of {', '.join(PROTOCOLS)}")
+        parser.error(f"PROTOCOL {args.protocol!r} unknown; expected one of "
+                     f"{', '.join(PROTOCOLS)}, {HID}")
     if args.link is not None and not args.link.parent.is_dir():
         parser.error(f"--link: folder {args.link.parent} does not exist")
     if args.bump_every < 0:
@@ -236,6 +248,64 @@ def run(args: argparse.Namespace) -> int:
         pass
     finally:
         served.close()
+    return 0
+
+
+def _run_hid(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
+    """Play a simulated HID scale and read it through pyusb, usb-hid:// and ``hid_pos``.
+
+    No other program can open this scale (that would need a kernel USB device), so instead of a
+    port this prints what heft reads from it: one line per change of weight or status.
+    """
+    for option in ("link", "definition", "geometry"):
+        if getattr(args, option) is not None:
+            parser.error(f"--{option}: a simulated HID scale has no port or definition file; "
+                         "it lives inside this process")
+    # Imported here: pyusb and the fake backend are only needed for this mode.
+    from drivers.fake_usb import SIM_PRODUCT_ID, SIM_VENDOR_ID, fake_scale_backend_from_weights
+    from drivers.protocols.hid_pos import HidPosDriver
+    from drivers.session import DeviceSession
+    from drivers.usb_transport import UsbHidTransport
+
+    unit = args.unit or "g"
+    rate_hz = args.rate or 10.0
+    horizon_s = args.duration or 100 * args.cycle
+    exponent = _HID_EXPONENTS[unit]
+    bench = BenchTimeline(make_geometry("single"), _script(args))
+    try:
+        samples = hid_scale_samples(bench, until_s=horizon_s, rate_hz=rate_hz,
+                                    noise=SensorNoise(args.seed, 0.03, 0.0))
+        backend = fake_scale_backend_from_weights(samples, unit=unit, exponent=exponent,
+                                                  end="hold")
+    except ValueError as err:
+        print(f"heft simulate: {err}", file=sys.stderr)
+        return 2
+    transport = UsbHidTransport(SIM_VENDOR_ID, SIM_PRODUCT_ID, backend=backend)
+    session = DeviceSession("hid-sim", HidPosDriver("hid-sim"), transport,
+                            silence_timeout_s=5.0)
+    print(f"{HID}: simulated USB HID scale {SIM_VENDOR_ID:04x}:{SIM_PRODUCT_ID:04x}, read in "
+          "this process through pyusb, usb-hid:// and the hid_pos driver")
+    print("(no other program can open it: that would need a kernel USB device; see "
+          "docs/hid.md)")
+    print("serving; Ctrl-C to stop", flush=True)
+
+    async def read() -> None:
+        last: tuple[float, Flag] | None = None
+        start_s: float | None = None
+        # Stopped by cancellation (timeout, Ctrl-C): the session closes the port on its way out.
+        async for item in session.outputs():
+            if not isinstance(item, Reading) or (item.value, item.flags) == last:
+                continue
+            last = (item.value, item.flags)
+            start_s = item.t_mono_s if start_s is None else start_s
+            flags = "|".join(f.name or "" for f in item.flags) or "-"
+            print(f"{item.t_mono_s - start_s:8.2f} s  {item.value:9.1f} g  {flags}",
+                  flush=True)
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _interrupt)
+    with contextlib.suppress(KeyboardInterrupt, TimeoutError):
+        asyncio.run(asyncio.wait_for(read(), args.duration))
     return 0
 
 
