@@ -304,9 +304,8 @@ class Driver(abc.ABC):
             value_g = units.mass_to_g(value, unit) if math.isfinite(value) else value
         except units.UnitError as err:
             raise FrameError(f"unknown unit {unit!r}") from err
-        # "-0.00 g" is zero: adding +0.0 turns IEEE negative zero into zero, so nothing above
-        # shows "-0.0 g".
-        value_g += 0.0
+        if value_g == 0.0:  # "-0.00 g" is zero: nothing above should show "-0.0 g"
+            value_g = 0.0
         return Reading(
             device=self.device, channel=channel, t_mono_s=t_mono_s, value=value_g,
             kind=ValueKind.GRAMS, device_unit=unit, flags=flags, raw=raw,
