@@ -137,6 +137,42 @@ def test_human_output_reads_at_the_bench(capsys: pytest.CaptureFixture[str]) -> 
     assert "412.0 g" in out and "29.10 in" in out and "D3.4" in out and "k = 2" in out
 
 
+def test_u_only_beside_values_whose_inputs_carry_one(capsys: pytest.CaptureFixture[str]) -> None:
+    # Only the weighing is uncertain (display step 0.1 g, one net reading: d/sqrt(6), GUM).
+    argv = ["--weight", "412", "--balance-point", "29.1", "--display-step", "0.1"]
+    doc = calc_json([*argv, "--target", "D2"], capsys)
+    u_w = 0.1 / 6**0.5
+    assert doc["total_weight_g_u"] == pytest.approx(2 * u_w)
+    assert "balance_point_in_u" not in doc  # a knife-edge BP does not depend on W (statics)
+    # M12 = W*(BP - 12) (golf.okrasa.eu/clubs/swingweight-en/; derived), 1 oz = 28.349523125 g.
+    assert doc["moment_12in_oz_in"] == pytest.approx(412 * 17.1 / 28.349523125)
+    assert doc["moment_12in_oz_in_u"] == pytest.approx(2 * u_w * 17.1 / 28.349523125)
+    assert "correction_at_in_u" not in doc  # the built-in 36 in is an assumption, not a reading
+    code, out, _ = run_calc(argv, capsys)
+    assert code == 0
+    # 2*u_w*15.1 in / (1.75 oz*in * 28.349523125 g/oz) = 0.025 point (trade tables,
+    # japanese.yujigolf.com/2012/01/blog-post_10.html); shown to two significant digits.
+    assert "D3.4 ± 0.025 points" in out
+    assert "29.10 in   (" in out and "± 0.00" not in out and "± 0.0 " not in out
+
+
+@pytest.mark.parametrize(
+    ("label", "echo", "points"),
+    [("C9.95", "C9.95", 29.95), ("D-0", "D0.0", 30.0), ("d 2", "D2.0", 32.0),
+     ("G10", "G10.0", 70.0)],
+)  # fmt: skip
+def test_target_echoes_the_precision_given(
+    label: str, echo: str, points: float, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Label = letter (A0 = 0, ten points a letter) + points within it (domain notes).
+    argv = ["--weight", "412", "--balance-point", "29.1", "--target", label, "--at", "36"]
+    doc = calc_json(argv, capsys)
+    assert doc["target_swingweight"] == echo
+    assert doc["target_swingweight_points"] == pytest.approx(points)
+    _, out, _ = run_calc(argv, capsys)
+    assert f"Target {echo}:" in out
+
+
 PARTS_TOML = """
 length = "37in"
 [head]
@@ -197,6 +233,13 @@ def test_pendulum_moi(capsys: pytest.CaptureFixture[str]) -> None:
     ("argv", "names"),
     [
         (["--weight", "20x", "--balance-point", "29"], "--weight"),
+        (["--weight", "nan", "--balance-point", "29"], "--weight"),
+        (["--weight", "inf", "--balance-point", "29"], "--weight"),
+        (["--weight", "1e400", "--balance-point", "29"], "--weight"),
+        (["--weight=-412", "--balance-point", "29"], "--weight"),
+        (["--weight", "412", "--balance-point=-inf"], "--balance-point"),
+        (["--weight", "400", "--balance-point", "29", "--target", "G10.5"], "--target"),
+        (["--weight", "400", "--balance-point", "29", "--target", "D1e1"], "--target"),
         (["--weight", "400", "--balance-point", "far"], "--balance-point"),
         (["--weight", "400", "--balance-point", "29", "--target", "H3"], "--target"),
         (["--weight", "400", "--balance-point", "29", "--target", "D12"], "--target"),

@@ -14,7 +14,6 @@ from daemon.physics.club import (
     club_from_weight_and_balance,
 )
 from daemon.physics.statics import StaticsError
-from daemon.physics.swingweight import G_IN_PER_POINT
 from daemon.physics.uncertainty import UncertainValue as U
 
 FIELDS = [
@@ -43,8 +42,11 @@ def test_u_fields_are_expanded_k2() -> None:
     assert c.total_weight_g_u == pytest.approx(1.0)
     assert c.moment_g_in_u == pytest.approx(2 * 0.5 * 14.9)
     assert c.moment_oz_in_u == pytest.approx(2 * 0.5 * 14.9 / 28.349523125)
-    assert c.swingweight_points_u == pytest.approx(2 * 0.5 * 14.9 / G_IN_PER_POINT)
-    assert c.balance_point_in_u == pytest.approx(0.0, abs=1e-9)
+    # 1 point = 1.75 oz*in (trade tables, japanese.yujigolf.com/2012/01/blog-post_10.html).
+    assert c.swingweight_points_u == pytest.approx(2 * 0.5 * 14.9 / (1.75 * 28.349523125))
+    # BP read on a knife edge does not depend on W: its inputs carry no uncertainty, so no
+    # _u at all (issue 2: a _u "beside each value whose inputs carry one"), not a "± 0".
+    assert c.balance_point_in_u is None
 
 
 def test_knife_edge_errors_cost_more_than_a_point_on_a_driver() -> None:
@@ -87,3 +89,11 @@ def test_other_fulcrum_keeps_swing_weight_on_14_in() -> None:
 def test_zero_weight_is_refused() -> None:
     with pytest.raises(StaticsError):
         club_from_weight_and_balance(U(0.0), U(29.0))
+
+
+def test_balance_point_never_picks_up_the_weighings_u_by_rounding() -> None:
+    # A knife-edge BP does not depend on W (statics), yet BP = 14 + W*(BP - 14)/W rounds
+    # differently as W moves (207.6 g at 28.12 in does); that noise must not become a _u.
+    c = club_from_weight_and_balance(U(207.6, 0.05), U(28.12))
+    assert c.balance_point_in_u is None
+    assert c.total_weight_g_u is not None

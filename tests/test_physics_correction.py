@@ -99,3 +99,20 @@ def test_correction_uncertainty_follows_the_readings() -> None:
     # Only the club's own moment is uncertain here: u(dm) = u(M14)/(x - 14) (GUM eq. 10).
     u_m14 = (15.0**2 * 0.05**2 + 420.0**2 * 0.05**2) ** 0.5
     assert with_u.mass_g_u == pytest.approx(2 * u_m14 / 22.0, rel=1e-4)
+
+
+def test_a_reading_used_twice_is_propagated_from_the_raw_inputs() -> None:
+    # W' = W + dm(W, BP) uses W twice, so u(W') is NOT sqrt(u(W)^2 + u(dm)^2). From the raw
+    # inputs (GUM eq. 10), with dm = (M_t - W*(BP - 14))/(x - 14) (domain notes, by moments):
+    # dW'/dW = 1 - (BP - 14)/(x - 14), dW'/dBP = -W/(x - 14).
+    w, u_w, bp, u_bp, x = 420.0, 0.5, 29.0, 0.01, 36.0
+    bench = weight_and_balance_bench(U(w, u_w), U(bp, u_bp))
+    numbers = correction_numbers(bench, points_from_label("D2"), U(x))
+    c_w, c_bp = 1 - (bp - 14) / (x - 14), -w / (x - 14)
+    u_correlated = ((c_w * u_w) ** 2 + (c_bp * u_bp) ** 2) ** 0.5
+    assert numbers.corrected_total_weight_g_u == pytest.approx(2 * u_correlated, rel=1e-5)
+    # Combining the derived u's as if independent would more than double it here (0.63 g
+    # against 0.25 g, by the formulas above).
+    assert numbers.mass_g_u is not None
+    u_naive = (u_w**2 + (numbers.mass_g_u / 2) ** 2) ** 0.5
+    assert u_naive > 2 * u_correlated

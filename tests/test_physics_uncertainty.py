@@ -91,3 +91,18 @@ def test_quotient_matches_analytic_sensitivities(a: float, ua: float, b: float, 
     y = propagate(lambda a, b: a / b, {"a": UncertainValue(a, ua), "b": UncertainValue(b, ub)})
     expected = combine_u(ua / b, a * ub / b**2)
     assert y.u == pytest.approx(expected, rel=1e-5, abs=1e-12)
+
+
+def test_a_value_that_does_not_depend_on_an_input_gets_none_of_its_u() -> None:
+    # y = (a*b)/a equals b but rounds differently as a moves (at these values a central
+    # difference sees about 1e-12 of pure rounding); the first-order law (GUM eq. 10) has
+    # dy/da = 0 exactly, so a's uncertainty must not leak in as rounding noise.
+    y = propagate(
+        lambda a, b: (a * b) / a, {"a": UncertainValue(395.5, 0.05), "b": UncertainValue(31.83)}
+    )
+    assert y.u == 0.0 and not y.has_u
+    # A real dependence, however small against the value, still counts (GUM eq. 10).
+    z = propagate(
+        lambda a, b: b + 1e-6 * a, {"a": UncertainValue(412.1, 0.05), "b": UncertainValue(29.1)}
+    )
+    assert z.u == pytest.approx(1e-6 * 0.05, rel=1e-6)

@@ -11,7 +11,7 @@ import json
 import math
 import sys
 import tomllib
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
@@ -42,15 +42,16 @@ from daemon.physics.swingweight import (
     FULCRUM_14_IN,
     SwingweightLabelError,
     SwingweightRangeError,
+    label_decimals,
     label_from_points,
-    moment_12in_from_14in_oz_in,
-    moment_oz_in_from_points,
+    moment_12in_oz_in,
     points_from_label,
     points_in_range,
 )
 from daemon.physics.uncertainty import (
     UncertainValue,
     combine_u,
+    expanded,
     net_resolution_u,
 )
 from daemon.units import (
@@ -357,15 +358,39 @@ def _build_from_parts(args: argparse.Namespace) -> ClubBuild:
 
 
 @dataclass(frozen=True)
+class Reported:
+    """A value and its expanded uncertainty (k = 2), None when its inputs carry none."""
+
+    value: float
+    u: float | None = None
+
+
+@dataclass(frozen=True)
+class _Method:
+    title: str  # heads the text output
+    options: str  # what a statics error is about
+
+
+_METHODS: Mapping[str, _Method] = {
+    "weight_balance": _Method("Measured club", "--weight/--balance-point"),
+    "supports": _Method("Club on two supports", "--support-a/--reading-a/--support-b/--reading-b"),
+    "lever": _Method("Club on a lever beam", "--lever-force/--lever-arm/--weight"),
+    "parts": _Method("Predicted club (from parts)", "parts"),
+}
+
+
+@dataclass(frozen=True)
 class CalcResult:
     method: str
     fulcrum_in: float
     club: ClubNumbers
     bench: BenchInputs
+    moment_12in_oz_in: Reported
     correction: CorrectionNumbers | None = None
-    correction_at_u: float | None = None
+    target_label: str | None = None  # the target as given, to the precision given
+    correction_at: Reported | None = None
     correction_at_default: str | None = None
-    moi_g_in2: tuple[float, float | None] | None = None
+    moi_g_in2: Reported | None = None
     length_change: tuple[float, str, float] | None = None  # delta_in, end, points before
     build: ClubBuild | None = None
 
@@ -475,114 +500,117 @@ def calculate(args: argparse.Namespace) -> CalcResult:
         bench, build, change = _bench(args, method, u, fulcrum)
         club = club_numbers(bench)
     except StaticsError as err:
-        raise CalcInputError(f"{method.replace('_', ' ')}: {err}") from None
+        raise CalcInputError(f"{_METHODS[method].options}: {err}") from None
+    m12 = bench.propagate(lambda s: moment_12in_oz_in(s.total_weight_g, s.balance_point_in))
 
     correction = None
-    at_u = None
+    target_label = None
+    at = None
     at_default = None
     if args.target is not None:
         try:
             target_points = points_from_label(args.target)
-        except SwingweightLabelError as err:
+            target_label = label_from_points(target_points, label_decimals(args.target))
+        except (SwingweightLabelError, SwingweightRangeError) as err:
             raise CalcInputError(f"--target: {err}") from None
         at_in = _length(args, "at")
         length_in = build.length_in if build else _length(args, "length")
+        # A position read off the club (--at, or the head found from --length) carries the
+        # position uncertainty; the built-in default is an assumption, not a reading.
+        at_u = u.position_in
         if at_in is None:
             if length_in is not None:
                 at_in = length_in - DEFAULT_HEAD_CG_FROM_END_IN
                 at_default = f"the head: {DEFAULT_HEAD_CG_FROM_END_IN:g} in short of the length"
             else:
-                at_in = DEFAULT_CORRECTION_AT_IN
+                at_in, at_u = DEFAULT_CORRECTION_AT_IN, 0.0
                 at_default = "default: a mid-iron head; give --at or --length"
-        at_u = u.position_in if u.position_in > 0 else None
+        position = UncertainValue(at_in, at_u)
+        at = Reported(at_in, expanded(at_u) if position.has_u else None)
         try:
-            correction = correction_numbers(bench, target_points, u.position(at_in))
+            correction = correction_numbers(bench, target_points, position)
         except (CorrectionError, SwingweightRangeError) as err:
             raise CalcInputError(f"--target/--at: {err}") from None
-
-    moi = None
-    if args.period is not None or args.pivot is not None:
-        _require(args, "an MOI from a pendulum", "period", "pivot")
-        period = _need(_number(args, "period", "a period in seconds such as 1.83"), "period")
-        period_u = _non_negative("--period-u", _number(args, "period_u", "a time in seconds"))
-        amplitude = _number(args, "amplitude", "an amplitude in degrees") or 0.0
-        if not 0.0 <= amplitude < 90.0:
-            raise CalcInputError(
-                f"--amplitude: {amplitude:g} is not a swing amplitude of 0 to below 90 degrees"
-            )
-        gravity = _number(args, "gravity", "an acceleration in m/s^2 such as 9.806")
-        try:
-            moi = moi_about_butt_numbers(
-                bench,
-                u.position(_need_length(args, "pivot")),
-                UncertainValue(period, period_u),
-                amplitude_rad=math.radians(amplitude),
-                gravity_m_s2=STANDARD_GRAVITY_M_S2 if gravity is None else gravity,
-            )
-        except PendulumError as err:
-            raise CalcInputError(f"--period/--pivot: {err}") from None
 
     return CalcResult(
         method=method,
         fulcrum_in=fulcrum,
         club=club,
         bench=bench,
+        moment_12in_oz_in=Reported(m12.value, bench.report_u(m12)),
         correction=correction,
-        correction_at_u=None if at_u is None else 2.0 * at_u,
+        target_label=target_label,
+        correction_at=at,
         correction_at_default=at_default,
-        moi_g_in2=moi,
+        moi_g_in2=_moi(args, bench, u),
         length_change=change,
         build=build,
     )
 
 
+def _moi(args: argparse.Namespace, bench: BenchInputs, u: InputUncertainty) -> Reported | None:
+    """MOI about the butt from --period/--pivot, or None when neither is given."""
+    if args.period is None and args.pivot is None:
+        return None
+    _require(args, "an MOI from a pendulum", "period", "pivot")
+    period = _need(_number(args, "period", "a period in seconds such as 1.83"), "period")
+    period_u = _non_negative("--period-u", _number(args, "period_u", "a time in seconds"))
+    amplitude = _number(args, "amplitude", "an amplitude in degrees") or 0.0
+    if not 0.0 <= amplitude < 90.0:
+        raise CalcInputError(
+            f"--amplitude: {amplitude:g} is not a swing amplitude of 0 to below 90 degrees"
+        )
+    gravity = _number(args, "gravity", "an acceleration in m/s^2 such as 9.806")
+    try:
+        value, moi_u = moi_about_butt_numbers(
+            bench,
+            u.position(_need_length(args, "pivot")),
+            UncertainValue(period, period_u),
+            amplitude_rad=math.radians(amplitude),
+            gravity_m_s2=STANDARD_GRAVITY_M_S2 if gravity is None else gravity,
+        )
+    except PendulumError as err:
+        raise CalcInputError(f"--period/--pivot: {err}") from None
+    return Reported(value, moi_u)
+
+
 # --- output -------------------------------------------------------------------------------------
 
 
-def _put(out: dict[str, object], key: str, value: object, u: float | None = None) -> None:
+def _put(out: dict[str, object], key: str, value: float, u: float | None) -> None:
     out[key] = value
     if u is not None:
         out[f"{key}_u"] = u
 
 
 def result_as_json(result: CalcResult) -> dict[str, object]:
-    """The ``--json`` document: unit-suffixed keys, ``<key>_u`` (k = 2) only where inputs had u."""
+    """The ``--json`` document: unit-suffixed keys, and ``<key>_u`` (k = 2) beside each value
+    whose inputs carry an uncertainty."""
     c = result.club
     out: dict[str, object] = {"method": result.method, "fulcrum_in": result.fulcrum_in}
     for key, value in c.as_dict().items():
-        if not key.endswith("_u"):
+        if isinstance(value, float):
             _put(out, key, value, getattr(c, f"{key}_u", None))
+        elif not key.endswith("_u"):
+            out[key] = value  # the label
     out["swingweight_in_range"] = points_in_range(c.swingweight_points)
-    m14_oz_in = moment_oz_in_from_points(c.swingweight_points)
-    out["moment_12in_oz_in"] = moment_12in_from_14in_oz_in(m14_oz_in, c.total_weight_g)
-    if result.correction is not None:
+    _put(out, "moment_12in_oz_in", result.moment_12in_oz_in.value, result.moment_12in_oz_in.u)
+    if result.correction is not None and result.correction_at is not None:
         k = result.correction
         corr = k.correction
-        out["target_swingweight"] = label_from_points(corr.target_points)
+        out["target_swingweight"] = result.target_label
         out["target_swingweight_points"] = corr.target_points
         _put(out, "correction_g", corr.mass_g, k.mass_g_u)
-        _put(out, "correction_at_in", corr.position_in, result.correction_at_u)
-        _put(
-            out,
-            "corrected_total_weight_g",
-            corr.corrected_total_weight_g,
-            k.corrected_total_weight_g_u,
-        )
-        _put(
-            out,
-            "corrected_balance_point_in",
-            corr.corrected_balance_point_in,
-            k.corrected_balance_point_in_u,
-        )
+        _put(out, "correction_at_in", corr.position_in, result.correction_at.u)
+        _put(out, "corrected_total_weight_g", corr.corrected_total_weight_g,
+             k.corrected_total_weight_g_u)  # fmt: skip
+        _put(out, "corrected_balance_point_in", corr.corrected_balance_point_in,
+             k.corrected_balance_point_in_u)  # fmt: skip
     if result.moi_g_in2 is not None:
-        value, u = result.moi_g_in2
-        _put(out, "moi_butt_g_in2", value, u)
-        _put(
-            out,
-            "moi_butt_kg_cm2",
-            g_in2_to_kg_cm2(value),
-            None if u is None else g_in2_to_kg_cm2(u),
-        )
+        moi = result.moi_g_in2
+        _put(out, "moi_butt_g_in2", moi.value, moi.u)
+        _put(out, "moi_butt_kg_cm2", g_in2_to_kg_cm2(moi.value),
+             None if moi.u is None else g_in2_to_kg_cm2(moi.u))  # fmt: skip
     if result.length_change is not None:
         delta, end, before = result.length_change
         out["length_change_in"] = delta
@@ -593,77 +621,86 @@ def result_as_json(result: CalcResult) -> dict[str, object]:
     return out
 
 
-def _pm(u: float | None, fmt: str, unit: str) -> str:
-    return "" if u is None else f" ± {u:{fmt}} {unit}"
+def uncertainty_text(u: float, value_decimals: int) -> str:
+    """``u`` to two significant digits (GUM 7.2.6), never to fewer decimals than its value."""
+    if u <= 0:
+        return f"{0:.{value_decimals}f}"
+    two_significant = max(0, 1 - math.floor(math.log10(u)))
+    return f"{u:.{max(value_decimals, two_significant)}f}"
+
+
+class _Text:
+    """Writes the text block; remembers whether any ± was shown so the footnote is only there
+    when it explains something."""
+
+    def __init__(self, stream: TextIO) -> None:
+        self.stream = stream
+        self.showed_u = False
+
+    def line(self, text: str) -> None:
+        self.stream.write(text + "\n")
+
+    def pm(self, u: float | None, value_decimals: int, unit: str) -> str:
+        """`` ± U unit`` or nothing when the value's inputs carry no uncertainty."""
+        if u is None:
+            return ""
+        self.showed_u = True
+        return f" ± {uncertainty_text(u, value_decimals)} {unit}"
 
 
 def print_human(result: CalcResult, stream: TextIO) -> None:
     """A short block readable at the bench."""
     c = result.club
-    w = print_line(stream)
-    titles = {
-        "weight_balance": "Measured club",
-        "supports": "Club on two supports",
-        "lever": "Club on a lever beam",
-        "parts": "Predicted club (from parts)",
-    }
-    w(titles[result.method])
-    w(
-        f"  total weight   {c.total_weight_g:8.1f} g{_pm(c.total_weight_g_u, '.1f', 'g')}"
+    t = _Text(stream)
+    t.line(_METHODS[result.method].title)
+    t.line(
+        f"  total weight   {c.total_weight_g:8.1f} g{t.pm(c.total_weight_g_u, 1, 'g')}"
         f"   ({g_to_oz(c.total_weight_g):.2f} oz)"
     )
-    w(
-        f"  balance point  {c.balance_point_in:8.2f} in{_pm(c.balance_point_in_u, '.2f', 'in')}"
+    t.line(
+        f"  balance point  {c.balance_point_in:8.2f} in{t.pm(c.balance_point_in_u, 2, 'in')}"
         f"   ({in_to_mm(c.balance_point_in):.0f} mm from the butt)"
     )
-    w(
+    t.line(
         f"  moment @{result.fulcrum_in:g} in {c.moment_g_in:7.0f} g*in"
-        f"{_pm(c.moment_g_in_u, '.0f', 'g*in')}"
-        f"   ({c.moment_oz_in:.1f} oz*in)"
+        f"{t.pm(c.moment_g_in_u, 0, 'g*in')}   ({c.moment_oz_in:.1f} oz*in)"
     )
     if points_in_range(c.swingweight_points):
         note = f"   ({c.swingweight_points:.2f} points, A0 = 0)"
     else:
         note = f"   OUT OF RANGE: {c.swingweight_points:.1f} points, the scale runs A0..G10"
-    w(f"  swing weight   {c.swingweight:>8}{_pm(c.swingweight_points_u, '.1f', 'points')}{note}")
+    sw_u = t.pm(c.swingweight_points_u, 1, "points")
+    t.line(f"  swing weight   {c.swingweight:>8}{sw_u}{note}")
     if result.length_change is not None:
         delta, end, before = result.length_change
-        w(
+        t.line(
             f"  length change  {delta:+.2f} in at the {end}: "
             f"{c.swingweight_points - before:+.1f} points"
         )
     if result.moi_g_in2 is not None:
-        value, u = result.moi_g_in2
-        w(
-            f"  MOI about butt {value:8.0f} g*in^2{_pm(u, '.0f', 'g*in^2')}"
-            f"   ({g_in2_to_kg_cm2(value):.0f} kg*cm^2)"
+        moi = result.moi_g_in2
+        t.line(
+            f"  MOI about butt {moi.value:8.0f} g*in^2{t.pm(moi.u, 0, 'g*in^2')}"
+            f"   ({g_in2_to_kg_cm2(moi.value):.0f} kg*cm^2)"
         )
-    if result.correction is not None:
-        corr = result.correction.correction
+    if result.correction is not None and result.correction_at is not None:
+        k = result.correction
+        corr = k.correction
         verb = "add" if corr.mass_g >= 0 else "remove"
         where = f" ({result.correction_at_default})" if result.correction_at_default else ""
-        mass_u = _pm(result.correction.mass_g_u, ".1f", "g")
-        w(
-            f"Target {label_from_points(corr.target_points)}: "
-            f"{verb} {abs(corr.mass_g):.1f} g{mass_u}"
-            f" at {corr.position_in:.2f} in{where}"
+        t.line(
+            f"Target {result.target_label}: {verb} {abs(corr.mass_g):.1f} g"
+            f"{t.pm(k.mass_g_u, 1, 'g')} at {corr.position_in:.2f} in"
+            f"{t.pm(result.correction_at.u, 2, 'in')}{where}"
         )
-        w(
-            f"  then           {corr.corrected_total_weight_g:8.1f} g, "
-            f"balance point {corr.corrected_balance_point_in:.2f} in"
+        t.line(
+            f"  then           {corr.corrected_total_weight_g:8.1f} g"
+            f"{t.pm(k.corrected_total_weight_g_u, 1, 'g')}, balance point "
+            f"{corr.corrected_balance_point_in:.2f} in"
+            f"{t.pm(k.corrected_balance_point_in_u, 2, 'in')}"
         )
-    shown_u = result.bench.carries_u or (
-        result.moi_g_in2 is not None and result.moi_g_in2[1] is not None
-    )
-    if shown_u or (result.correction is not None and result.correction.mass_g_u is not None):
-        w("± values are expanded uncertainties (k = 2, about 95 %).")
-
-
-def print_line(stream: TextIO) -> Callable[[str], None]:
-    def w(text: str) -> None:
-        stream.write(text + "\n")
-
-    return w
+    if t.showed_u:
+        t.line("± values are expanded uncertainties (k = 2, about 95 %).")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -1,8 +1,9 @@
 """The numbers heft reports for one club, with expanded uncertainties, from any bench method.
 
 Every ``*_u`` field is the EXPANDED uncertainty U = 2*u_c (k = 2, GUM) propagated from the
-inputs' standard uncertainties, or None when no input carried one. ``moment_g_in`` is about the
-requested fulcrum (14 in unless stated); the swing weight is always read on the 14-inch
+inputs' standard uncertainties, or None when no input that value depends on carried one (a
+balance point read on a knife edge does not get the weighing's uncertainty). ``moment_g_in`` is
+about the requested fulcrum (14 in unless stated); the swing weight is always read on the 14-inch
 Lorythmic scale. A swing weight off the A0..G10 scale keeps its points and gets the label
 ``'<A0'`` or ``'>G10'`` so it is never mistaken for an on-scale value.
 """
@@ -25,7 +26,7 @@ from daemon.physics.swingweight import (
     moment_about_g_in,
     points_from_moment_g_in,
 )
-from daemon.physics.uncertainty import UncertainValue, any_uncertain, expanded, propagate
+from daemon.physics.uncertainty import UncertainValue, expanded, propagate
 from daemon.units import g_in_to_oz_in
 
 
@@ -60,10 +61,6 @@ class BenchInputs:
     inputs: Mapping[str, UncertainValue]
     fulcrum_in: float = FULCRUM_14_IN
 
-    @property
-    def carries_u(self) -> bool:
-        return any_uncertain(self.inputs.values())
-
     def evaluate(self) -> ClubStatics:
         """The statics at the input values (raises StaticsError on impossible input)."""
         return self.statics(**{k: x.value for k, x in self.inputs.items()})
@@ -94,16 +91,10 @@ class BenchInputs:
 
         return propagate(f, {**self.inputs, **extra})
 
-    def report_u_with(
-        self, extra: Mapping[str, UncertainValue], x: UncertainValue, scale: float = 1.0
-    ) -> float | None:
-        """Expanded uncertainty of ``x`` when the bench or ``extra`` carried one, else None."""
-        carried = self.carries_u or any_uncertain(extra.values())
-        return expanded(x.u) * scale if carried else None
-
     def report_u(self, x: UncertainValue, scale: float = 1.0) -> float | None:
-        """Expanded uncertainty (k = 2) of ``x`` times ``scale``; None when no input carried one."""
-        return expanded(x.u) * scale if self.carries_u else None
+        """Expanded uncertainty (k = 2) of ``x`` times ``scale``, or None when ``x`` depends on no
+        input that carries an uncertainty."""
+        return expanded(x.u) * scale if x.has_u else None
 
 
 def moment_14in_g_in(statics: ClubStatics, fulcrum_in: float) -> float:

@@ -107,7 +107,7 @@ def correction_numbers(
 
     def u_of(field: Callable[[Correction], float]) -> float | None:
         x = bench.propagate_with(extra, lambda s, v: field(corrected(s, v)))
-        return bench.report_u_with(extra, x)
+        return bench.report_u(x)
 
     return CorrectionNumbers(
         correction=correction,

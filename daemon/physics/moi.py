@@ -174,4 +174,4 @@ def moi_about_butt_numbers(
         )
 
     x = bench.propagate_with(extra, moi)
-    return x.value, bench.report_u_with(extra, x)
+    return x.value, bench.report_u(x)

@@ -155,6 +155,19 @@ def points_from_label(label: str) -> float:
     return letter_index * POINTS_PER_LETTER + within
 
 
+def label_decimals(label: str) -> int:
+    """Decimals a label was written with, at least one: ``'D2'`` -> 1, ``'C9.95'`` -> 2.
+
+    Echoing a label to the precision it was given keeps ``C9.95`` from printing as ``C9.9``
+    (or ``D0.0``) while the arithmetic uses 29.95 points.
+    """
+    m = _LABEL.match(label)
+    if m is None:
+        raise SwingweightLabelError(f"swing weight {label!r} is not {_LABEL_FORM}")
+    _, _, fraction = m.group(2).partition(".")
+    return max(1, len(fraction))
+
+
 # --- the older 12-inch ("official") scale -------------------------------------------------------
 
 

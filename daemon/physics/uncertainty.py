@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import statistics
+import sys
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 
@@ -18,6 +19,9 @@ COVERAGE_FACTOR_K = 2.0
 _STEP_PER_U = 1e-3
 _MIN_STEP_PER_VALUE = 1e-8
 _MIN_STEP = 1e-12
+# Rounding allowance of a central difference, in units of the result's last place: a few
+# operations inside ``func`` each round once (generous, so noise never passes for a slope).
+_ROUNDING_ULPS = 64
 
 
 def _step(x: UncertainValue) -> float:
@@ -72,15 +76,24 @@ def expanded(u: float, k: float = COVERAGE_FACTOR_K) -> float:
     return k * u
 
 
-def sensitivity(
+def _central_difference(
     func: Callable[..., float], values: Mapping[str, float], name: str, step: float
-) -> float:
-    """df/d(name) at ``values`` by a central difference of half-width ``step``."""
+) -> tuple[float, float]:
+    """(slope, the most rounding alone could put into that slope)."""
     up = dict(values)
     down = dict(values)
     up[name] = values[name] + step
     down[name] = values[name] - step
-    return (func(**up) - func(**down)) / (2.0 * step)
+    f_up, f_down = float(func(**up)), float(func(**down))
+    noise = _ROUNDING_ULPS * sys.float_info.epsilon * max(abs(f_up), abs(f_down))
+    return (f_up - f_down) / (2.0 * step), noise / (2.0 * step)
+
+
+def sensitivity(
+    func: Callable[..., float], values: Mapping[str, float], name: str, step: float
+) -> float:
+    """df/d(name) at ``values`` by a central difference of half-width ``step``."""
+    return _central_difference(func, values, name, step)[0]
 
 
 def propagate(func: Callable[..., float], inputs: Mapping[str, UncertainValue]) -> UncertainValue:
@@ -88,15 +101,18 @@ def propagate(func: Callable[..., float], inputs: Mapping[str, UncertainValue]) 
 
     Sensitivity coefficients come from central differences with a step of 1e-3 of each input's
     own standard uncertainty (never below 1e-8 of its value). Inputs with u = 0 contribute
-    nothing and are not perturbed.
+    nothing and are not perturbed. A slope no larger than what float rounding alone could
+    produce counts as zero: ``y`` does not depend on that input (W does not move a balance
+    point read on a knife edge), so a result with ``u == 0`` depends on no uncertain input.
     """
     values = {name: x.value for name, x in inputs.items()}
     y = float(func(**values))
     terms = []
     for name, x in inputs.items():
         if x.u > 0:
-            c = sensitivity(func, values, name, _step(x))
-            terms.append(c * x.u)
+            c, noise = _central_difference(func, values, name, _step(x))
+            if abs(c) > noise:
+                terms.append(c * x.u)
     return UncertainValue(y, combine_u(*terms))
 
 
