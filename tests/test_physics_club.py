@@ -61,6 +61,8 @@ def test_knife_edge_errors_cost_more_than_a_point_on_a_driver() -> None:
 
 def test_methods_agree_on_one_club() -> None:
     # A 412 g club with BP 29.1 in read three ways (statics: all must give the same numbers).
+    # Its label, by hand: 412 g * 15.1 in = 219.45 oz*in; (219.45 - 161) / 1.75 = 33.4 points
+    # = D3.4 (trade tables, japanese.yujigolf.com/2012/01/blog-post_10.html).
     w, bp = 412.0, 29.1
     fb = w * (bp - 4.0) / 32.0  # supports at 4 and 36 in
     by_supports = club_from_two_supports(U(w - fb), U(4.0), U(fb), U(36.0))
@@ -73,6 +75,8 @@ def test_methods_agree_on_one_club() -> None:
 
 
 def test_off_scale_clubs_still_get_numbers_and_a_clear_label() -> None:
+    # 150 g * 6 in = 31.7 oz*in, far below A0 = 161; 600 g * 20 in = 423 oz*in, far above
+    # G10 = 161 + 70 * 1.75 = 283.5 oz*in (trade tables, as above).
     light = club_from_weight_and_balance(U(150.0), U(20.0))
     assert light.swingweight == "<A0" and light.swingweight_points < 0
     heavy = club_from_weight_and_balance(U(600.0), U(34.0))

@@ -111,6 +111,7 @@ def test_moi_uncertainty_from_the_period() -> None:
     # I_pivot is proportional to T^2: u(I_pivot)/I_pivot = 2 u(T)/T (GUM eq. 12).
     bench = weight_and_balance_bench(U(420.0), U(29.0))
     _value, u = moi_about_butt_numbers(bench, U(1.0), U(1.6, 0.001))
-    i_pivot = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6)
+    # I_pivot = m g d T^2 / (4 pi^2), d = 29 - 1 in (textbook physical pendulum).
+    i_pivot = 420.0 * G_IN_S2 * 28.0 * 1.6**2 / (4 * math.pi**2)
     assert u == pytest.approx(2 * (2 * 0.001 / 1.6) * i_pivot, rel=1e-5)
     assert moi_about_butt_numbers(bench, U(1.0), U(1.6))[1] is None

@@ -13,8 +13,12 @@ from daemon.physics.statics import (
     lever_statics,
     two_support_statics,
 )
-from daemon.physics.swingweight import G_IN_PER_POINT
 from daemon.physics.uncertainty import UncertainValue as U
+
+# One point = 1.75 oz*in (trade tables: C0 = 196, C8 = 210 in*oz,
+# japanese.yujigolf.com/2012/01/blog-post_10.html); 1 oz = 28.349523125 g (exact, 1959).
+G_IN_PER_POINT_PUBLISHED = 1.75 * 28.349523125
+A0_G_IN_PUBLISHED = 161.0 * 28.349523125  # A0 = 161 oz*in, same tables
 
 
 def test_two_supports_by_hand() -> None:
@@ -78,14 +82,18 @@ def test_lever_beam_reads_about_ten_grams_per_point_at_five_inches() -> None:
     # (tutelman.com/golf/measure/digitalModSwingweightScale.php; derived 49.61/5).
     d0 = lever_statics(1210.0, 5.0, 420.0)
     d1 = lever_statics(1210.0 + 10.0, 5.0, 420.0)
-    assert (d1.moment_g_in - d0.moment_g_in) / G_IN_PER_POINT == pytest.approx(1.0, abs=0.01)
+    points = (d1.moment_g_in - d0.moment_g_in) / G_IN_PER_POINT_PUBLISHED
+    assert points == pytest.approx(1.0, abs=0.01)
 
 
 def test_lever_with_weight_gives_balance_point() -> None:
     c = club_from_lever(U(1210.0), U(5.0), U(420.0))
+    # Lever statics: M = F*r = 1210 g * 5 in; BP = 14 + M/W (domain notes, method 2).
     assert c.moment_g_in == pytest.approx(6050.0)
     assert c.balance_point_in == pytest.approx(14.0 + 6050.0 / 420.0)
-    assert c.swingweight_points == pytest.approx((6050.0 - 161 * 28.349523125) / G_IN_PER_POINT)
+    assert c.swingweight_points == pytest.approx(
+        (6050.0 - A0_G_IN_PUBLISHED) / G_IN_PER_POINT_PUBLISHED
+    )
 
 
 def test_impossible_readings_are_named() -> None:
