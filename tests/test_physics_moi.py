@@ -11,13 +11,10 @@ from hypothesis import strategies as st
 from daemon.physics.club import weight_and_balance_bench
 from daemon.physics.moi import (
     STANDARD_GRAVITY_M_S2,
+    Pendulum,
     PendulumError,
     large_swing_factor,
-    moi_about_butt_g_in2,
-    moi_about_butt_kg_cm2,
     moi_about_butt_numbers,
-    moi_about_pivot_g_in2,
-    period_for_moi_s,
 )
 from daemon.physics.uncertainty import UncertainValue as U
 
@@ -40,7 +37,9 @@ def test_uniform_rod_about_its_end() -> None:
     m, length = 400.0, 44.0
     period = 2 * math.pi * math.sqrt(2 * length / (3 * G_IN_S2))
     assert _rod_period_about(0.0, m, length) == pytest.approx(period)
-    assert moi_about_pivot_g_in2(m, length / 2, 0.0, period) == pytest.approx(m * length**2 / 3)
+    rod = Pendulum(m, length / 2, 0.0)
+    assert rod.moi_about_pivot_g_in2(period) == pytest.approx(m * length**2 / 3)
+    assert rod.moi_about_butt_g_in2(period) == pytest.approx(m * length**2 / 3)
 
 
 @pytest.mark.parametrize("pivot_in", [0.5, 1.0, 2.0, 4.0])
@@ -48,7 +47,7 @@ def test_rod_about_a_pivot_near_the_butt_recovers_the_end_moi(pivot_in: float) -
     # Parallel-axis theorem (textbook): whatever the pivot, the MOI about the end is m L^2/3.
     m, length = 400.0, 44.0
     period = _rod_period_about(pivot_in, m, length)
-    assert moi_about_butt_g_in2(m, length / 2, pivot_in, period) == pytest.approx(
+    assert Pendulum(m, length / 2, pivot_in).moi_about_butt_g_in2(period) == pytest.approx(
         m * length**2 / 3, rel=1e-12
     )
 
@@ -72,11 +71,10 @@ def test_amplitude_correction_removes_the_slow_down() -> None:
     t0 = _rod_period_about(pivot, m, length)
     theta = math.radians(15.0)
     seen = t0 * large_swing_factor(theta)
-    assert moi_about_butt_g_in2(m, 22.0, pivot, seen, amplitude_rad=theta) == pytest.approx(
-        m * length**2 / 3
-    )
+    swinging = Pendulum(m, 22.0, pivot, amplitude_rad=theta)
+    assert swinging.moi_about_butt_g_in2(seen) == pytest.approx(m * length**2 / 3)
     # Ignoring the amplitude overstates the MOI.
-    assert moi_about_butt_g_in2(m, 22.0, pivot, seen) > m * length**2 / 3
+    assert Pendulum(m, 22.0, pivot).moi_about_butt_g_in2(seen) > m * length**2 / 3
 
 
 @settings(deadline=None)  # no timing in unit tests: the CI machine is shared
@@ -84,27 +82,34 @@ def test_amplitude_correction_removes_the_slow_down() -> None:
 def test_period_for_moi_is_the_inverse(moi_kg_cm2: float, pivot_in: float, deg: float) -> None:
     w, bp = 420.0, 29.0
     moi_g_in2 = moi_kg_cm2 * 1000.0 / 2.54**2
-    t = period_for_moi_s(moi_g_in2, w, bp, pivot_in, amplitude_rad=math.radians(abs(deg)))
-    back = moi_about_butt_kg_cm2(w, bp, pivot_in, t, amplitude_rad=math.radians(abs(deg)))
+    pendulum = Pendulum(w, bp, pivot_in, amplitude_rad=math.radians(abs(deg)))
+    t = pendulum.period_for_moi_s(moi_g_in2)
+    back = pendulum.moi_about_butt_kg_cm2(t)
     assert back == pytest.approx(moi_kg_cm2, rel=1e-9)
 
 
 def test_local_gravity_matters() -> None:
     # The pendulum scales with g: a 0.5 % higher g gives a 0.5 % higher MOI about the pivot.
-    a = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=9.78)
-    b = moi_about_pivot_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=9.78 * 1.005)
+    a = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78).moi_about_pivot_g_in2(1.6)
+    b = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78 * 1.005).moi_about_pivot_g_in2(1.6)
     assert b / a == pytest.approx(1.005)
 
 
 def test_bad_pendulum_inputs() -> None:
     with pytest.raises(PendulumError, match="pivot"):
-        moi_about_butt_g_in2(420.0, 29.0, 30.0, 1.6)
+        Pendulum(420.0, 29.0, 30.0)
     with pytest.raises(PendulumError, match="gravity"):
-        moi_about_butt_g_in2(420.0, 29.0, 1.0, 1.6, gravity_m_s2=32.2)
+        Pendulum(420.0, 29.0, 1.0, gravity_m_s2=32.2)
+    with pytest.raises(PendulumError, match="amplitude"):
+        Pendulum(420.0, 29.0, 1.0, amplitude_rad=math.nan)
+    with pytest.raises(PendulumError, match="weight"):
+        Pendulum(0.0, 29.0, 1.0)
+    with pytest.raises(PendulumError, match="period"):
+        Pendulum(420.0, 29.0, 1.0).moi_about_butt_g_in2(-1.6)
     # I_butt >= m BP^2 since I about the CG cannot be negative (parallel axis): 420 g at
     # 29 in needs at least 353,220 g*in^2 (2279 kg*cm^2).
     with pytest.raises(PendulumError, match="point mass"):
-        period_for_moi_s(2000.0 * 1000.0 / 2.54**2, 420.0, 29.0, 1.0)
+        Pendulum(420.0, 29.0, 1.0).period_for_moi_s(2000.0 * 1000.0 / 2.54**2)
 
 
 def test_moi_uncertainty_from_the_period() -> None:

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import dataclass
 
 from daemon.physics.club import BenchInputs
 from daemon.physics.statics import ClubStatics
@@ -44,110 +45,76 @@ def large_swing_factor(amplitude_rad: float) -> float:
     return 1.0 / _agm(1.0, math.cos(amplitude_rad / 2.0))
 
 
-def _gravity_in_s2(gravity_m_s2: float) -> float:
-    if not 9.7 <= gravity_m_s2 <= 9.9:
-        raise PendulumError(
-            f"gravity {gravity_m_s2:g} m/s^2 is not an Earth-surface value (about 9.78-9.83)"
-        )
-    return m_to_in(gravity_m_s2)
+@dataclass(frozen=True)
+class Pendulum:
+    """A club hung from a pivot ``pivot_in`` from the butt: everything but the period.
 
+    Checked on creation (PendulumError): a positive weight, the pivot between the butt and the
+    balance point, an Earth-surface gravity and an amplitude of 0..pi.
+    """
 
-def _cg_below_pivot_in(balance_point_in: float, pivot_in: float) -> float:
-    d = balance_point_in - pivot_in
-    if d <= 0:
-        raise PendulumError(
-            f"the pivot at {pivot_in:g} in must lie between the butt and the balance point "
-            f"({balance_point_in:g} in)"
-        )
-    return d
+    total_weight_g: float
+    balance_point_in: float
+    pivot_in: float
+    gravity_m_s2: float = STANDARD_GRAVITY_M_S2
+    amplitude_rad: float = 0.0
 
+    def __post_init__(self) -> None:
+        if not self.total_weight_g > 0:
+            raise PendulumError(f"total weight must be positive, not {self.total_weight_g:g} g")
+        if not self.balance_point_in - self.pivot_in > 0:
+            raise PendulumError(
+                f"the pivot at {self.pivot_in:g} in must lie between the butt and the balance "
+                f"point ({self.balance_point_in:g} in)"
+            )
+        if not 9.7 <= self.gravity_m_s2 <= 9.9:
+            raise PendulumError(
+                f"gravity {self.gravity_m_s2:g} m/s^2 is not an Earth-surface value "
+                "(about 9.78-9.83)"
+            )
+        large_swing_factor(self.amplitude_rad)  # checks the amplitude
 
-def moi_about_pivot_g_in2(
-    total_weight_g: float,
-    balance_point_in: float,
-    pivot_in: float,
-    period_s: float,
-    *,
-    gravity_m_s2: float = STANDARD_GRAVITY_M_S2,
-    amplitude_rad: float = 0.0,
-) -> float:
-    """I about the pivot from the measured period: m*g*d*T0^2 / (4*pi^2), in g*in^2."""
-    if period_s <= 0 or total_weight_g <= 0:
-        raise PendulumError("period and total weight must be positive")
-    d = _cg_below_pivot_in(balance_point_in, pivot_in)
-    t0 = period_s / large_swing_factor(amplitude_rad)
-    return total_weight_g * _gravity_in_s2(gravity_m_s2) * d * t0**2 / (4.0 * math.pi**2)
+    @property
+    def cg_below_pivot_in(self) -> float:
+        return self.balance_point_in - self.pivot_in
 
+    @property
+    def _stiffness_g_in2_s2(self) -> float:
+        """m*g*d: the restoring moment per radian, so I_pivot = m*g*d * T0^2 / (4*pi^2)."""
+        return self.total_weight_g * m_to_in(self.gravity_m_s2) * self.cg_below_pivot_in
 
-def pivot_to_butt_g_in2(
-    moi_pivot_g_in2: float, total_weight_g: float, balance_point_in: float, pivot_in: float
-) -> float:
-    """Parallel axis: I_butt = I_pivot + m*p*(2*BP - p)."""
-    return moi_pivot_g_in2 + total_weight_g * pivot_in * (2.0 * balance_point_in - pivot_in)
+    @property
+    def _butt_minus_pivot_g_in2(self) -> float:
+        """Parallel axis: I_butt - I_pivot = m*p*(2*BP - p)."""
+        p = self.pivot_in
+        return self.total_weight_g * p * (2.0 * self.balance_point_in - p)
 
+    def moi_about_pivot_g_in2(self, period_s: float) -> float:
+        """I about the pivot from the measured period (amplitude corrected), in g*in^2."""
+        if not period_s > 0:
+            raise PendulumError(f"the period must be positive, not {period_s:g} s")
+        t0 = period_s / large_swing_factor(self.amplitude_rad)
+        return self._stiffness_g_in2_s2 * t0**2 / (4.0 * math.pi**2)
 
-def moi_about_butt_g_in2(
-    total_weight_g: float,
-    balance_point_in: float,
-    pivot_in: float,
-    period_s: float,
-    *,
-    gravity_m_s2: float = STANDARD_GRAVITY_M_S2,
-    amplitude_rad: float = 0.0,
-) -> float:
-    """MOI about the butt in g*in^2 from a period measured about a pivot ``pivot_in`` from it."""
-    i_pivot = moi_about_pivot_g_in2(
-        total_weight_g,
-        balance_point_in,
-        pivot_in,
-        period_s,
-        gravity_m_s2=gravity_m_s2,
-        amplitude_rad=amplitude_rad,
-    )
-    return pivot_to_butt_g_in2(i_pivot, total_weight_g, balance_point_in, pivot_in)
+    def moi_about_butt_g_in2(self, period_s: float) -> float:
+        """MOI about the butt in g*in^2 from the period measured about the pivot."""
+        return self.moi_about_pivot_g_in2(period_s) + self._butt_minus_pivot_g_in2
 
+    def moi_about_butt_kg_cm2(self, period_s: float) -> float:
+        """As :meth:`moi_about_butt_g_in2`, in kg*cm^2."""
+        return g_in2_to_kg_cm2(self.moi_about_butt_g_in2(period_s))
 
-def moi_about_butt_kg_cm2(
-    total_weight_g: float,
-    balance_point_in: float,
-    pivot_in: float,
-    period_s: float,
-    *,
-    gravity_m_s2: float = STANDARD_GRAVITY_M_S2,
-    amplitude_rad: float = 0.0,
-) -> float:
-    """As :func:`moi_about_butt_g_in2`, in kg*cm^2."""
-    return g_in2_to_kg_cm2(
-        moi_about_butt_g_in2(
-            total_weight_g,
-            balance_point_in,
-            pivot_in,
-            period_s,
-            gravity_m_s2=gravity_m_s2,
-            amplitude_rad=amplitude_rad,
-        )
-    )
-
-
-def period_for_moi_s(
-    moi_butt_g_in2: float,
-    total_weight_g: float,
-    balance_point_in: float,
-    pivot_in: float,
-    *,
-    gravity_m_s2: float = STANDARD_GRAVITY_M_S2,
-    amplitude_rad: float = 0.0,
-) -> float:
-    """The period a club of this MOI about the butt should show about the pivot (the inverse)."""
-    d = _cg_below_pivot_in(balance_point_in, pivot_in)
-    i_pivot = moi_butt_g_in2 - total_weight_g * pivot_in * (2.0 * balance_point_in - pivot_in)
-    if i_pivot < total_weight_g * d * d:
-        raise PendulumError(
-            "that MOI is smaller than a point mass at the balance point allows; "
-            "check the MOI, weight and balance point"
-        )
-    t0 = 2.0 * math.pi * math.sqrt(i_pivot / (total_weight_g * _gravity_in_s2(gravity_m_s2) * d))
-    return t0 * large_swing_factor(amplitude_rad)
+    def period_for_moi_s(self, moi_butt_g_in2: float) -> float:
+        """The period a club of this MOI about the butt should show about the pivot."""
+        i_pivot = moi_butt_g_in2 - self._butt_minus_pivot_g_in2
+        d = self.cg_below_pivot_in
+        if i_pivot < self.total_weight_g * d * d:
+            raise PendulumError(
+                "that MOI is smaller than a point mass at the balance point allows; "
+                "check the MOI, weight and balance point"
+            )
+        t0 = 2.0 * math.pi * math.sqrt(i_pivot / self._stiffness_g_in2_s2)
+        return t0 * large_swing_factor(self.amplitude_rad)
 
 
 def moi_about_butt_numbers(
@@ -164,14 +131,10 @@ def moi_about_butt_numbers(
     extra = {"pivot_in": pivot_in, "period_s": period_s}
 
     def moi(s: ClubStatics, v: Mapping[str, float]) -> float:
-        return moi_about_butt_g_in2(
-            s.total_weight_g,
-            s.balance_point_in,
-            v["pivot_in"],
-            v["period_s"],
-            gravity_m_s2=gravity_m_s2,
-            amplitude_rad=amplitude_rad,
+        pendulum = Pendulum(
+            s.total_weight_g, s.balance_point_in, v["pivot_in"], gravity_m_s2, amplitude_rad
         )
+        return pendulum.moi_about_butt_g_in2(v["period_s"])
 
     x = bench.propagate_with(extra, moi)
     return x.value, bench.report_u(x)
