@@ -244,6 +244,17 @@ def test_pendulum_moi(capsys: pytest.CaptureFixture[str]) -> None:
     assert doc["moi_butt_g_in2_u"] == pytest.approx(2 * 2 * 0.002 / 1.55 * i_pivot, rel=1e-5)
 
 
+CLUB = ["--weight", "400", "--balance-point", "29"]
+PENDULUM = [*CLUB, "--pivot", "1"]
+
+
+def parts_argv(**override: str) -> list[str]:
+    """Options for an invented 7-iron from parts, with some values replaced."""
+    values = {"head": "260", "shaft": "120", "shaft_length": "41", "length": "37",
+              "shaft_balance_point": "21", "grip": "50", **override}  # fmt: skip
+    return [f"--{k.replace('_', '-')}={v}" for k, v in values.items()]
+
+
 @pytest.mark.parametrize(
     ("argv", "names"),
     [
@@ -253,94 +264,28 @@ def test_pendulum_moi(capsys: pytest.CaptureFixture[str]) -> None:
         (["--weight", "1e400", "--balance-point", "29"], "--weight"),
         (["--weight=-412", "--balance-point", "29"], "--weight"),
         (["--weight", "412", "--balance-point=-inf"], "--balance-point"),
-        (["--weight", "400", "--balance-point", "29", "--target", "G10.5"], "--target"),
-        (["--weight", "400", "--balance-point", "29", "--target", "D1e1"], "--target"),
         (["--weight", "400", "--balance-point", "far"], "--balance-point"),
-        (["--weight", "400", "--balance-point", "29", "--target", "H3"], "--target"),
-        (["--weight", "400", "--balance-point", "29", "--target", "D12"], "--target"),
-        (["--weight", "400", "--balance-point", "29", "--target", "D-"], "--target"),
-        (["--weight", "400", "--balance-point", "29", "--target", "D2", "--at", "14"], "--at"),
+        ([*CLUB, "--target", "G10.5"], "--target"),
+        ([*CLUB, "--target", "D1e1"], "--target"),
+        ([*CLUB, "--target", "H3"], "--target"),
+        ([*CLUB, "--target", "D12"], "--target"),
+        ([*CLUB, "--target", "D-"], "--target"),
+        ([*CLUB, "--target", "D2", "--at", "14"], "--at"),
         (["--support-a", "4", "--reading-a", "100"], "--support-b"),
         (["--weight", "400"], "--balance-point"),
         ([], "--weight"),
-        (["--weight", "400", "--balance-point", "29", "--display-step", "-1"], "--display-step"),
-        (["--weight", "400", "--balance-point", "29", "--period", "1.5"], "--pivot"),
+        ([*CLUB, "--display-step", "-1"], "--display-step"),
+        ([*CLUB, "--period", "1.5"], "--pivot"),
         (["--weight", "0", "--balance-point", "29"], "total weight"),
-        (
-            [
-                "--weight",
-                "400",
-                "--balance-point",
-                "29",
-                "--period",
-                "1.5",
-                "--pivot",
-                "1",
-                "--amplitude",
-                "200",
-            ],
-            "--amplitude",
-        ),
-        (
-            ["--weight", "400", "--balance-point", "29", "--period", "nan", "--pivot", "1"],
-            "--period",
-        ),
-        (
-            [
-                "--head",
-                "-5",
-                "--shaft",
-                "120",
-                "--shaft-length",
-                "41",
-                "--length",
-                "37",
-                "--shaft-balance-point",
-                "20",
-                "--grip",
-                "50",
-            ],
-            "head",
-        ),
+        ([*PENDULUM, "--period", "1.5", "--amplitude", "200"], "--amplitude"),
+        ([*PENDULUM, "--period", "nan"], "--period"),
+        ([*PENDULUM, "--period=-1.5"], "period"),
+        (parts_argv(head="-5"), "head"),
         (["--head", "260"], "--length"),
-        (["--weight", "400", "--balance-point", "29", "--extra", "5g@36"], "--extra"),
-        (["--weight", "400", "--balance-point", "29", "--length-change", "1"], "--length-change"),
-        (
-            [
-                "--head",
-                "260",
-                "--shaft",
-                "120",
-                "--shaft-length",
-                "41",
-                "--length",
-                "37",
-                "--shaft-balance-point",
-                "21",
-                "--grip",
-                "50",
-                "--extra",
-                "5g",
-            ],
-            "--extra",
-        ),
-        (
-            [
-                "--head",
-                "260",
-                "--shaft",
-                "120",
-                "--shaft-length",
-                "41",
-                "--length",
-                "37",
-                "--shaft-balance-point",
-                "5",
-                "--grip",
-                "50",
-            ],
-            "1/3 and 2/3",
-        ),
+        ([*CLUB, "--extra", "5g@36"], "--extra"),
+        ([*CLUB, "--length-change", "1"], "--length-change"),
+        ([*parts_argv(), "--extra", "5g"], "--extra"),
+        (parts_argv(shaft_balance_point="5"), "1/3 and 2/3"),
         (["--head", "260", "--weight", "400"], "--weight"),
     ],
 )

@@ -720,6 +720,60 @@ def run(args: argparse.Namespace) -> int:
 # --- the parser ---------------------------------------------------------------------------------
 
 
+# Value options by group: (flag, metavar, help). All are read as text and parsed in calculate().
+_VALUE_OPTIONS: tuple[tuple[str, tuple[tuple[str, str, str], ...]], ...] = (
+    ("a measured club", (
+        ("--weight", "MASS", "total weight, e.g. 412g or 14.53oz"),
+        ("--balance-point", "LEN", "balance point from the butt, e.g. 28.9in or 734mm"),
+    )),
+    ("two supports (two scales or two cells under one beam)", (
+        ("--support-a", "LEN", "position of support A from the butt stop"),
+        ("--reading-a", "MASS", "tared reading of support A"),
+        ("--support-b", "LEN", "position of support B from the butt stop"),
+        ("--reading-b", "MASS", "tared reading of support B"),
+    )),
+    ("lever beam (pivot at the fulcrum; needs --weight too)", (
+        ("--lever-force", "MASS", "reading at the lever arm, empty beam zeroed"),
+        ("--lever-arm", "LEN", "distance of that reading from the pivot"),
+    )),
+    ("prediction from parts (or --parts FILE.toml)", (
+        ("--parts", "FILE", "TOML file of parts (see docs/calc.md)"),
+        ("--length", "LEN", "club length; also places a correction at the head"),
+        ("--head", "MASS", "head mass"),
+        ("--head-cg-from-end", "LEN",
+         f"head CG back from the club's end (default {DEFAULT_HEAD_CG_FROM_END_IN:g} in)"),
+        ("--shaft", "MASS", "shaft mass before trimming"),
+        ("--shaft-length", "LEN", "shaft length before trimming"),
+        ("--shaft-balance-point", "LEN", "shaft balance point from its butt end"),
+        ("--tip-trim", "LEN", "length cut from the shaft tip"),
+        ("--butt-trim", "LEN", "length cut from the shaft butt"),
+        ("--shaft-butt-at", "LEN", "where the shaft's butt sits (default 0)"),
+        ("--grip", "MASS", "grip mass"),
+        ("--grip-cg", "LEN", f"grip CG from the butt (default {DEFAULT_GRIP_CG_IN:g} in)"),
+        ("--length-change", "LEN",
+         "make the club longer (+) or shorter (-); write --length-change=-0.5in"),
+    )),
+    ("target", (
+        ("--target", "LABEL", "target swing weight, e.g. D2 or d-1.5"),
+        ("--at", "LEN", "where the correction mass goes (default: the head, from --length; "
+         f"else {DEFAULT_CORRECTION_AT_IN:g} in)"),
+    )),
+    ("MOI from a pendulum swing", (
+        ("--period", "S", "period of one full swing in seconds"),
+        ("--pivot", "LEN", "pivot position from the butt"),
+        ("--period-u", "S", "standard uncertainty of the period"),
+        ("--amplitude", "DEG", "swing amplitude in degrees (default 0: small swings)"),
+        ("--gravity", "M/S2", "local gravity (default 9.80665)"),
+    )),
+    ("uncertainty of the inputs (standard uncertainties)", (
+        ("--display-step", "MASS", "the scale's display step d (u = d/sqrt(6))"),
+        ("--repeatability", "MASS", "scatter of repeated readings (one sigma)"),
+        ("--position-u", "LEN", "uncertainty of each position"),
+        ("--balance-point-u", "LEN", "uncertainty of --balance-point"),
+    )),
+)  # fmt: skip
+
+
 def register(subparsers: Any) -> None:
     p: argparse.ArgumentParser = subparsers.add_parser(
         "calc",
@@ -730,71 +784,26 @@ def register(subparsers: Any) -> None:
             "Positions are measured from the butt (the end of the grip cap)."
         ),
     )
-    a = p.add_argument
-    g = p.add_argument_group("a measured club").add_argument
-    g("--weight", metavar="MASS", help="total weight, e.g. 412g or 14.53oz")
-    g("--balance-point", metavar="LEN", help="balance point from the butt, e.g. 28.9in or 734mm")
-    g = p.add_argument_group("two supports (two scales or two cells under one beam)").add_argument
-    g("--support-a", metavar="LEN", help="position of support A from the butt stop")
-    g("--reading-a", metavar="MASS", help="tared reading of support A")
-    g("--support-b", metavar="LEN", help="position of support B from the butt stop")
-    g("--reading-b", metavar="MASS", help="tared reading of support B")
-    g = p.add_argument_group("lever beam (pivot at the fulcrum; needs --weight too)").add_argument
-    g("--lever-force", metavar="MASS", help="reading at the lever arm, empty beam zeroed")
-    g("--lever-arm", metavar="LEN", help="distance of that reading from the pivot")
-    g = p.add_argument_group("prediction from parts (or --parts FILE.toml)").add_argument
-    g("--parts", metavar="FILE", help="TOML file of parts (see docs/calc.md)")
-    g("--length", metavar="LEN", help="club length; also places a correction at the head")
-    g("--head", metavar="MASS", help="head mass")
-    g(
-        "--head-cg-from-end",
-        metavar="LEN",
-        help=f"head CG back from the club's end (default {DEFAULT_HEAD_CG_FROM_END_IN:g} in)",
-    )
-    g("--shaft", metavar="MASS", help="shaft mass before trimming")
-    g("--shaft-length", metavar="LEN", help="shaft length before trimming")
-    g("--shaft-balance-point", metavar="LEN", help="shaft balance point from its butt end")
-    g("--tip-trim", metavar="LEN", help="length cut from the shaft tip")
-    g("--butt-trim", metavar="LEN", help="length cut from the shaft butt")
-    g("--shaft-butt-at", metavar="LEN", help="where the shaft's butt sits (default 0)")
-    g("--grip", metavar="MASS", help="grip mass")
-    g("--grip-cg", metavar="LEN", help=f"grip CG from the butt (default {DEFAULT_GRIP_CG_IN:g} in)")
-    g(
+    groups = {}
+    for title, options in _VALUE_OPTIONS:
+        groups[title] = group = p.add_argument_group(title)
+        for flag, metavar, text in options:
+            group.add_argument(flag, metavar=metavar, help=text)
+    parts = groups["prediction from parts (or --parts FILE.toml)"]
+    parts.add_argument(
         "--extra",
         metavar="MASS@LEN[:tip|:butt]",
         action="append",
         help="another mass: tape, tip weight, butt weight (repeatable)",
     )
-    g(
-        "--length-change",
-        metavar="LEN",
-        help="make the club longer (+) or shorter (-); write --length-change=-0.5in",
-    )
-    g(
+    parts.add_argument(
         "--change-at",
         choices=("tip", "butt"),
         default="butt",
         help="where the length changes (default butt)",
     )
-    g = p.add_argument_group("target").add_argument
-    g("--target", metavar="LABEL", help="target swing weight, e.g. D2 or d-1.5")
-    g(
-        "--at",
-        metavar="LEN",
-        help=f"where the correction mass goes (default: the head, from --length; else "
-        f"{DEFAULT_CORRECTION_AT_IN:g} in)",
+    p.add_argument("--fulcrum", metavar="LEN", help="fulcrum for the moment (default 14 in)")
+    p.add_argument(
+        "--json", action="store_true", help="print JSON (unit-suffixed keys) instead of text"
     )
-    g = p.add_argument_group("MOI from a pendulum swing").add_argument
-    g("--period", metavar="S", help="period of one full swing in seconds")
-    g("--pivot", metavar="LEN", help="pivot position from the butt")
-    g("--period-u", metavar="S", help="standard uncertainty of the period")
-    g("--amplitude", metavar="DEG", help="swing amplitude in degrees (default 0: small swings)")
-    g("--gravity", metavar="M/S2", help="local gravity (default 9.80665)")
-    g = p.add_argument_group("uncertainty of the inputs (standard uncertainties)").add_argument
-    g("--display-step", metavar="MASS", help="the scale's display step d (u = d/sqrt(6))")
-    g("--repeatability", metavar="MASS", help="scatter of repeated readings (one sigma)")
-    g("--position-u", metavar="LEN", help="uncertainty of each position")
-    g("--balance-point-u", metavar="LEN", help="uncertainty of --balance-point")
-    a("--fulcrum", metavar="LEN", help="fulcrum for the moment (default 14 in)")
-    a("--json", action="store_true", help="print JSON (unit-suffixed keys) instead of text")
     p.set_defaults(func=run)
