@@ -5,6 +5,7 @@ Every other module works in grams and inches; convert at the edges with the help
 
 from __future__ import annotations
 
+import math
 import re
 from typing import Final
 
@@ -144,6 +145,9 @@ def parse_quantity(text: str, *, kind: str) -> float:
     number = float(m.group(1))
     unit = m.group(2) or ("g" if kind == "mass" else "in")
     try:
-        return mass_to_g(number, unit) if kind == "mass" else length_to_in(number, unit)
+        value = mass_to_g(number, unit) if kind == "mass" else length_to_in(number, unit)
     except UnitError:
         raise UnitError(f"{text!r} has unit {unit!r}; expected {expected}") from None
+    if not math.isfinite(value):  # '1e400' matches the pattern but overflows
+        raise UnitError(f"{text!r} is too large; expected {expected}")
+    return value

@@ -308,6 +308,12 @@ def test_bad_parts_file_names_the_key(capsys: pytest.CaptureFixture[str], tmp_pa
     path.write_text(PARTS_TOML.replace("[grip]", "[grip]\nweigth = 3"), encoding="utf-8")
     code, _, err = run_calc(["--parts", str(path)], capsys)
     assert code == 2 and "'weigth'" in err and "[grip]" in err
+    path.write_text(PARTS_TOML.replace('mass = "120g"', "mass = nan"), encoding="utf-8")
+    code, _, err = run_calc(["--parts", str(path)], capsys)  # TOML has nan and inf literals
+    assert code == 2 and "shaft.mass" in err and "finite" in err
+    path.write_text(PARTS_TOML.replace("at = 36", "at = inf"), encoding="utf-8")
+    code, _, err = run_calc(["--parts", str(path)], capsys)
+    assert code == 2 and "[[extra]] #1 at" in err
     path.write_text("length = [", encoding="utf-8")
     code, _, err = run_calc(["--parts", str(path)], capsys)
     assert code == 2 and "not valid TOML" in err

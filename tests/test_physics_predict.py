@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+import math
 
 import pytest
 from hypothesis import given, settings
@@ -134,3 +135,13 @@ def test_monotonic_in_length(delta_in: float, more_in: float, end: End) -> None:
 def test_negative_mass_refused() -> None:
     with pytest.raises(BuildError, match="tape"):
         Part("tape", -1.0, 36.0)
+
+
+@pytest.mark.parametrize("bad", [math.nan, math.inf, -1.0])
+def test_non_finite_parts_are_refused_when_the_build_is_made(bad: float) -> None:
+    with pytest.raises(BuildError, match="shaft"):
+        Shaft(bad, 41.0, 20.0)
+    with pytest.raises(BuildError, match="head"):
+        dataclasses.replace(SEVEN_IRON, head_g=bad)
+    with pytest.raises(BuildError, match="grip"):
+        dataclasses.replace(SEVEN_IRON, grip_cg_in=bad if bad != -1.0 else math.nan)

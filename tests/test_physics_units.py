@@ -43,3 +43,9 @@ def test_parse_quantity(text: str, kind: str, value: float) -> None:
 def test_moment_conversion() -> None:
     assert units.oz_in_to_g_in(1.75) == pytest.approx(49.6117, abs=1e-4)
     assert units.g_in_to_oz_in(units.oz_in_to_g_in(213.5)) == pytest.approx(213.5)
+
+
+@pytest.mark.parametrize("text", ["1e400", "1e400g", "nan", "inf", "12 furlongs", ""])
+def test_parse_quantity_refuses_what_is_not_a_finite_quantity(text: str) -> None:
+    with pytest.raises(units.UnitError, match="a mass such as"):
+        units.parse_quantity(text, kind="mass")

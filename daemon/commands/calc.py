@@ -35,6 +35,7 @@ from daemon.physics.predict import (
     Part,
     Shaft,
     change_length,
+    predict,
     statics_of_parts,
 )
 from daemon.physics.statics import StaticsError
@@ -250,6 +251,8 @@ def _toml_value(source: str, where: str, raw: object, kind: str) -> float:
             return parse_quantity(raw, kind=kind)
         except UnitError as err:
             raise CalcInputError(f"{source}: {where}: {err}") from None
+    if not math.isfinite(raw):  # TOML allows nan and inf
+        raise CalcInputError(f"{source}: {where} must be a finite number, not {raw}")
     return float(raw)
 
 
@@ -462,12 +465,7 @@ def _bench(
         change = None
         if args.length_change is not None:
             delta = _need_length(args, "length_change")
-            before = statics_of_parts(build.parts())
-            points_before = club_numbers(
-                weight_and_balance_bench(
-                    UncertainValue(before.total_weight_g), UncertainValue(before.balance_point_in)
-                )
-            ).swingweight_points
+            points_before = predict(build).swingweight_points
             try:
                 build = change_length(build, delta, End(args.change_at))
             except BuildError as err:

@@ -64,9 +64,10 @@ class Shaft:
     balance_point_in: float
 
     def __post_init__(self) -> None:
-        if self.mass_g <= 0 or self.length_in <= 0:
+        # Written so that NaN fails too (every comparison with NaN is False).
+        if not (0 < self.mass_g < math.inf and 0 < self.length_in < math.inf):
             raise BuildError(
-                f"shaft mass and length must be positive, not {self.mass_g:g} g, "
+                f"shaft mass and length must be positive finite numbers, not {self.mass_g:g} g, "
                 f"{self.length_in:g} in"
             )
         lo, hi = self.length_in / 3.0, 2.0 * self.length_in / 3.0
@@ -120,11 +121,9 @@ class ClubBuild:
     extras: tuple[Part, ...] = ()
 
     def __post_init__(self) -> None:
-        if not self.length_in > 0:
+        if not 0 < self.length_in < math.inf:
             raise BuildError(f"club length must be positive, not {self.length_in:g} in")
-        for name, mass in (("head", self.head_g), ("grip", self.grip_g)):
-            if not mass >= 0:
-                raise BuildError(f"{name}: mass must be >= 0 g, not {mass:g}")
+        self.parts()  # each Part checks its own mass and position (BuildError naming it)
 
     def parts(self) -> tuple[Part, ...]:
         shaft_cg_in = self.shaft_butt_in + self.shaft.balance_point_in
