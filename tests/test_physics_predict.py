@@ -145,3 +145,33 @@ def test_non_finite_parts_are_refused_when_the_build_is_made(bad: float) -> None
         dataclasses.replace(SEVEN_IRON, head_g=bad)
     with pytest.raises(BuildError, match="grip"):
         dataclasses.replace(SEVEN_IRON, grip_cg_in=bad if bad != -1.0 else math.nan)
+
+
+def test_tip_or_butt_cut_of_a_uniform_shaft_leaves_the_same_club() -> None:
+    # A uniform shaft (balance point at half its length) cut by c at either end leaves a
+    # uniform shaft of L - c seated at the butt, and the head moves c either way (statics), so
+    # both cuts must give the same club.
+    build = dataclasses.replace(SEVEN_IRON, shaft=Shaft(110.0, 37.0, 18.5))
+    tip = predict(change_length(build, -0.5, End.TIP))
+    butt = predict(change_length(build, -0.5, End.BUTT))
+    assert tip.total_weight_g == pytest.approx(butt.total_weight_g, rel=1e-12)
+    assert tip.swingweight_points == pytest.approx(butt.swingweight_points, abs=1e-9)
+
+
+def test_butt_cut_of_a_butt_heavy_shaft_removes_more() -> None:
+    # Density rho(s) = a + b s (s from the shaft's butt), b < 0 for a shaft balancing short of
+    # half way. After a cut c the shaft spans 0..L-c either way; a butt cut leaves rho(s + c),
+    # lighter by |b| c everywhere, so (calculus) it weighs |b| c (L - c) less and its moment
+    # about 14 in is |b| c * integral of (s - 14) over 0..L-c smaller.
+    length, cut = 37.0, 0.5
+    shaft = Shaft(110.0, length, 17.5)
+    # Calculus: the first moment about L/2 of a + b s over 0..L is b L^3 / 12 = m (BP - L/2).
+    b = 12.0 * 110.0 * (17.5 - length / 2) / length**3
+    build = dataclasses.replace(SEVEN_IRON, shaft=shaft)
+    tip = predict(change_length(build, -cut, End.TIP))
+    butt = predict(change_length(build, -cut, End.BUTT))
+    rest = length - cut
+    assert tip.total_weight_g - butt.total_weight_g == pytest.approx(-b * cut * rest, rel=1e-9)
+    moment_gap = -b * cut * (rest**2 / 2 - 14.0 * rest)
+    assert tip.moment_g_in - butt.moment_g_in == pytest.approx(moment_gap, rel=1e-9)
+    assert butt.swingweight_points < tip.swingweight_points
