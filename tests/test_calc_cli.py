@@ -335,3 +335,14 @@ def test_installed_command_end_to_end() -> None:
     )  # fmt: skip
     assert bad.returncode == 2
     assert bad.stderr.strip().count("\n") == 0 and "--weight" in bad.stderr
+
+
+@pytest.mark.parametrize(
+    ("u", "value_decimals", "text"),
+    [(0.02485, 1, "0.025"), (0.0816, 1, "0.082"), (41.2, 0, "41"), (0.1, 2, "0.10"),
+     (0.83, 1, "0.83"), (1863.4, 0, "1863"), (0.0, 2, "0.00")],
+)  # fmt: skip
+def test_uncertainty_digits(u: float, value_decimals: int, text: str) -> None:
+    # Two significant digits suffice for an uncertainty (GUM, JCGM 100:2008, 7.2.6); never
+    # fewer decimals than the value beside it, so a small one does not print as 0.0.
+    assert calc.uncertainty_text(u, value_decimals) == text
