@@ -88,6 +88,14 @@ def test_two_supports_with_uncertainty(capsys: pytest.CaptureFixture[str]) -> No
     assert doc["total_weight_g_u"] == pytest.approx(2 * (2 * 0.1**2 / 6) ** 0.5)
 
 
+def test_butt_gap_u(capsys: pytest.CaptureFixture[str]) -> None:
+    supports = ["--support-a", "4", "--reading-a", "75", "--support-b", "36", "--reading-b", "315"]
+    doc = calc_json([*supports, "--butt-gap-u", "1mm"], capsys)
+    # A 1 mm slide against the stop = 0.31 point on this club (domain notes, derived); k = 2.
+    assert doc["swingweight_points_u"] == pytest.approx(2 * 0.31, abs=0.01)
+    assert "total_weight_g_u" not in doc  # seating does not change the weight
+
+
 def test_lever_beam(capsys: pytest.CaptureFixture[str]) -> None:
     doc = calc_json(["--lever-force", "1210", "--lever-arm", "5", "--weight", "420"], capsys)
     assert doc["moment_g_in"] == pytest.approx(6050.0)
@@ -287,6 +295,7 @@ def parts_argv(**override: str) -> list[str]:
         ([*parts_argv(), "--extra", "5g"], "--extra"),
         (parts_argv(shaft_balance_point="5"), "1/3 and 2/3"),
         (["--head", "260", "--weight", "400"], "--weight"),
+        ([*CLUB, "--butt-gap-u", "1mm"], "--butt-gap-u"),
     ],
 )
 def test_bad_input_one_line_exit_2(

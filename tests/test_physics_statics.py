@@ -105,3 +105,25 @@ def test_impossible_readings_are_named() -> None:
         lever_statics(100.0, 0.0, 400.0)
     with pytest.raises(StaticsError, match="total weight"):
         balance_point_from_moment_in(100.0, 0.0)
+
+
+def test_butt_gap_is_one_shared_error_not_two_independent_ones() -> None:
+    # A 1 mm slide against the butt stop moves the swing weight 0.31 point on a 390 g club on
+    # supports at 4 and 36 in (domain notes, derived). Propagated as the one shared input it is
+    # (GUM eq. 10), a 1 mm butt-gap u gives that; two independent 1 mm position errors give
+    # 0.26 point instead (root sum of squares of the two slopes).
+    c = club_from_two_supports(U(75.0), U(4.0), U(315.0), U(36.0), butt_gap_in=U(0.0, 1 / 25.4))
+    assert c.swingweight_points_u is not None
+    assert c.swingweight_points_u / 2 == pytest.approx(0.31, abs=0.005)
+    independent = _club(xa=1 / 25.4, xb=1 / 25.4)
+    assert independent != pytest.approx(0.31, abs=0.02)
+
+
+def test_butt_gap_on_the_lever_beam_costs_w_times_the_gap() -> None:
+    # Club sitting g short of the stop: its moment about its own 14-in point is F*r - W*g
+    # (statics), so u(M) = W * u(g) and u(points) = W * u(g) / (1.75 oz*in), trade tables.
+    c = club_from_lever(U(1210.0), U(5.0), U(420.0), butt_gap_in=U(0.0, 0.02))
+    assert c.moment_g_in_u == pytest.approx(2 * 420.0 * 0.02)
+    assert c.swingweight_points_u == pytest.approx(2 * 420.0 * 0.02 / G_IN_PER_POINT_PUBLISHED)
+    shifted = lever_statics(1210.0, 5.0, 420.0, butt_gap_in=0.1)
+    assert shifted.moment_g_in == pytest.approx(6050.0 - 42.0)

@@ -155,6 +155,10 @@ class InputUncertainty:
     mass_g: float = 0.0
     position_in: float = 0.0
     balance_point_in: float = 0.0
+    butt_gap_in: float = 0.0  # seating against the butt stop: one error for every position
+
+    def butt_gap(self) -> UncertainValue:
+        return UncertainValue(0.0, self.butt_gap_in)
 
     def mass(self, value_g: float) -> UncertainValue:
         return UncertainValue(value_g, self.mass_g)
@@ -169,9 +173,10 @@ def _uncertainty(args: argparse.Namespace) -> InputUncertainty:
     position = _non_negative("--position-u", _length(args, "position_u"))
     bp_u = _length(args, "balance_point_u")
     balance = position if bp_u is None else _non_negative("--balance-point-u", bp_u)
+    gap = _non_negative("--butt-gap-u", _length(args, "butt_gap_u"))
     # Each reading is a net reading (load minus a tared zero): d/sqrt(6) per GUM, plus the
     # scatter of repeated readings in quadrature.
-    return InputUncertainty(combine_u(net_resolution_u(step), repeat), position, balance)
+    return InputUncertainty(combine_u(net_resolution_u(step), repeat), position, balance, gap)
 
 
 # --- parts --------------------------------------------------------------------------------------
@@ -429,6 +434,11 @@ def _bench(
     args: argparse.Namespace, method: str, u: InputUncertainty, fulcrum: float
 ) -> tuple[BenchInputs, ClubBuild | None, tuple[float, str, float] | None]:
     """The bench inputs for the chosen method, plus the build and length change for parts."""
+    if method in ("weight_balance", "parts") and args.butt_gap_u is not None:
+        raise CalcInputError(
+            "--butt-gap-u goes with two supports or a lever beam; for a balance point found on "
+            "a knife edge, include seating in --balance-point-u"
+        )
     if method == "supports":
         _require(args, "two supports", "support_a", "reading_a", "support_b", "reading_b")
         for stray in _given(args, "weight", "balance_point"):
@@ -440,6 +450,7 @@ def _bench(
                 u.mass(_need_mass(args, "reading_b")),
                 u.position(_need_length(args, "support_b")),
                 fulcrum,
+                u.butt_gap(),
             ),
             None,
             None,
@@ -454,6 +465,7 @@ def _bench(
                 u.position(_need_length(args, "lever_arm")),
                 u.mass(_need_mass(args, "weight")),
                 fulcrum,
+                u.butt_gap(),
             ),
             None,
             None,
@@ -768,6 +780,8 @@ _VALUE_OPTIONS: tuple[tuple[str, tuple[tuple[str, str, str], ...]], ...] = (
         ("--repeatability", "MASS", "scatter of repeated readings (one sigma)"),
         ("--position-u", "LEN", "uncertainty of each position"),
         ("--balance-point-u", "LEN", "uncertainty of --balance-point"),
+        ("--butt-gap-u", "LEN",
+         "how well clubs sit against the butt stop (supports and lever beam)"),
     )),
 )  # fmt: skip
 

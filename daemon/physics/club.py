@@ -29,6 +29,9 @@ from daemon.physics.swingweight import (
 from daemon.physics.uncertainty import UncertainValue, expanded, propagate
 from daemon.units import g_in_to_oz_in
 
+# The club seated against the butt stop, exactly (no seating uncertainty given).
+NO_BUTT_GAP = UncertainValue(0.0)
+
 
 @dataclass(frozen=True)
 class ClubNumbers:
@@ -133,14 +136,21 @@ def two_supports_bench(
     reading_b_g: UncertainValue,
     position_b_in: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: UncertainValue = NO_BUTT_GAP,
 ) -> BenchInputs:
-    """Two tared support readings at positions from the butt stop."""
+    """Two tared support readings at positions from the butt stop. ``butt_gap_in``: how far the
+    club may sit short of the stop (see daemon.physics.statics), one input shared by both
+    positions, so its effect is propagated as the correlated shift it is."""
 
     def statics(
-        reading_a_g: float, position_a_in: float, reading_b_g: float, position_b_in: float
+        reading_a_g: float,
+        position_a_in: float,
+        reading_b_g: float,
+        position_b_in: float,
+        butt_gap_in: float,
     ) -> ClubStatics:
         return two_support_statics(
-            reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in
+            reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in, butt_gap_in
         )
 
     inputs = {
@@ -148,6 +158,7 @@ def two_supports_bench(
         "position_a_in": position_a_in,
         "reading_b_g": reading_b_g,
         "position_b_in": position_b_in,
+        "butt_gap_in": butt_gap_in,
     }
     return BenchInputs(statics, inputs, fulcrum_in)
 
@@ -157,13 +168,22 @@ def lever_bench(
     lever_arm_in: UncertainValue,
     total_weight_g: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: UncertainValue = NO_BUTT_GAP,
 ) -> BenchInputs:
-    """A fulcrum-lever beam (force at a lever arm from the pivot) plus a separate weighing."""
+    """A fulcrum-lever beam (force at a lever arm from the pivot) plus a separate weighing;
+    ``butt_gap_in`` as for :func:`two_supports_bench`."""
 
-    def statics(force_g: float, lever_arm_in: float, total_weight_g: float) -> ClubStatics:
-        return lever_statics(force_g, lever_arm_in, total_weight_g, fulcrum_in)
+    def statics(
+        force_g: float, lever_arm_in: float, total_weight_g: float, butt_gap_in: float
+    ) -> ClubStatics:
+        return lever_statics(force_g, lever_arm_in, total_weight_g, fulcrum_in, butt_gap_in)
 
-    inputs = {"force_g": force_g, "lever_arm_in": lever_arm_in, "total_weight_g": total_weight_g}
+    inputs = {
+        "force_g": force_g,
+        "lever_arm_in": lever_arm_in,
+        "total_weight_g": total_weight_g,
+        "butt_gap_in": butt_gap_in,
+    }
     return BenchInputs(statics, inputs, fulcrum_in)
 
 
@@ -193,10 +213,13 @@ def club_from_two_supports(
     reading_b_g: UncertainValue,
     position_b_in: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: UncertainValue = NO_BUTT_GAP,
 ) -> ClubNumbers:
     """Club numbers from two tared support readings at positions from the butt stop."""
     return club_numbers(
-        two_supports_bench(reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in)
+        two_supports_bench(
+            reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in, butt_gap_in
+        )
     )
 
 
@@ -205,9 +228,10 @@ def club_from_lever(
     lever_arm_in: UncertainValue,
     total_weight_g: UncertainValue,
     fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: UncertainValue = NO_BUTT_GAP,
 ) -> ClubNumbers:
     """Club numbers from a fulcrum-lever beam plus a separate weighing."""
-    return club_numbers(lever_bench(force_g, lever_arm_in, total_weight_g, fulcrum_in))
+    return club_numbers(lever_bench(force_g, lever_arm_in, total_weight_g, fulcrum_in, butt_gap_in))
 
 
 def club_from_weight_and_balance(

@@ -7,6 +7,11 @@ Fulcrum lever (the classic swing-weight beam): the beam pivots at the fulcrum an
 load cell at lever arm r from the pivot reads the force F that holds the club level, so the
 club's moment about the fulcrum is M = F*r (the empty beam's own moment is zeroed away first).
 A separate weighing gives W, and BP = fulcrum + M/W.
+
+Butt gap: both benches place the club against a butt stop. A club resting ``butt_gap_in`` short
+of the stop (its butt that far towards the head) sits on supports at x_i - gap from its own
+butt, and on the lever beam its moment about its own 14-inch point is F*r - W*gap. The gap is
+normally 0; its uncertainty is how well clubs are seated, one error shared by every position.
 """
 
 from __future__ import annotations
@@ -43,8 +48,11 @@ def two_support_statics(
     reading_b_g: float,
     position_b_in: float,
     fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: float = 0.0,
 ) -> ClubStatics:
     """W, BP and the moment about ``fulcrum_in`` from two tared support readings."""
+    position_a_in -= butt_gap_in
+    position_b_in -= butt_gap_in
     if position_a_in == position_b_in:
         raise StaticsError("the two supports must stand at different positions")
     total_weight_g = reading_a_g + reading_b_g
@@ -65,14 +73,18 @@ def lever_moment_g_in(force_g: float, lever_arm_in: float) -> float:
 
 
 def lever_statics(
-    force_g: float, lever_arm_in: float, total_weight_g: float, fulcrum_in: float = FULCRUM_14_IN
+    force_g: float,
+    lever_arm_in: float,
+    total_weight_g: float,
+    fulcrum_in: float = FULCRUM_14_IN,
+    butt_gap_in: float = 0.0,
 ) -> ClubStatics:
     """Moment from the lever beam plus a separate total weight -> W, BP, moment."""
     if lever_arm_in <= 0:
         raise StaticsError(
             f"lever arm must be a positive distance from the pivot, not {lever_arm_in:g} in"
         )
-    moment_g_in = lever_moment_g_in(force_g, lever_arm_in)
+    moment_g_in = lever_moment_g_in(force_g, lever_arm_in) - total_weight_g * butt_gap_in
     return ClubStatics(
         total_weight_g,
         balance_point_from_moment_in(moment_g_in, total_weight_g, fulcrum_in),
