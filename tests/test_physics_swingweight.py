@@ -15,6 +15,7 @@ from daemon.physics.swingweight import (
     SwingweightLabelError,
     SwingweightRangeError,
     describe_points,
+    label_decimals,
     label_from_points,
     moment_12in_from_14in_oz_in,
     moment_12in_oz_in,
@@ -173,3 +174,16 @@ def test_points_moment_inverse(points: float) -> None:
     assert points_from_moment_g_in(moment_g_in_from_points(points)) == pytest.approx(
         points, abs=1e-9
     )
+
+
+@pytest.mark.parametrize(
+    ("text", "decimals", "echo"),
+    [("D2", 1, "D2.0"), ("d-2.5", 1, "D2.5"), ("C9.95", 2, "C9.95"), ("D-0", 1, "D0.0"),
+     ("d 2", 1, "D2.0"), ("G10", 1, "G10.0"), ("E.25", 2, "E0.25")],
+)  # fmt: skip
+def test_a_label_prints_back_to_the_precision_it_was_given(
+    text: str, decimals: int, echo: str
+) -> None:
+    # Label convention as above (domain notes; common practice, no source).
+    assert label_decimals(text) == decimals
+    assert label_from_points(points_from_label(text), decimals) == echo
