@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import asdict, dataclass
+from typing import ParamSpec
 
 from daemon.physics.statics import (
     ClubStatics,
@@ -29,6 +30,7 @@ from daemon.physics.swingweight import (
 from daemon.physics.uncertainty import UncertainValue, expanded, propagate
 from daemon.units import g_in_to_oz_in
 
+P = ParamSpec("P")
 # The club seated against the butt stop, exactly (no seating uncertainty given).
 NO_BUTT_GAP = UncertainValue(0.0)
 
@@ -207,37 +209,17 @@ def weight_and_balance_bench(
     return BenchInputs(statics, inputs, fulcrum_in)
 
 
-def club_from_two_supports(
-    reading_a_g: UncertainValue,
-    position_a_in: UncertainValue,
-    reading_b_g: UncertainValue,
-    position_b_in: UncertainValue,
-    fulcrum_in: float = FULCRUM_14_IN,
-    butt_gap_in: UncertainValue = NO_BUTT_GAP,
-) -> ClubNumbers:
-    """Club numbers from two tared support readings at positions from the butt stop."""
-    return club_numbers(
-        two_supports_bench(
-            reading_a_g, position_a_in, reading_b_g, position_b_in, fulcrum_in, butt_gap_in
-        )
-    )
+def _numbers_from(bench: Callable[P, BenchInputs]) -> Callable[P, ClubNumbers]:
+    """``club_numbers(bench(...))`` with the bench builder's own signature."""
+
+    def numbers(*args: P.args, **kwargs: P.kwargs) -> ClubNumbers:
+        return club_numbers(bench(*args, **kwargs))
+
+    numbers.__doc__ = f"Club numbers from the readings :func:`{bench.__name__}` takes."
+    return numbers
 
 
-def club_from_lever(
-    force_g: UncertainValue,
-    lever_arm_in: UncertainValue,
-    total_weight_g: UncertainValue,
-    fulcrum_in: float = FULCRUM_14_IN,
-    butt_gap_in: UncertainValue = NO_BUTT_GAP,
-) -> ClubNumbers:
-    """Club numbers from a fulcrum-lever beam plus a separate weighing."""
-    return club_numbers(lever_bench(force_g, lever_arm_in, total_weight_g, fulcrum_in, butt_gap_in))
-
-
-def club_from_weight_and_balance(
-    total_weight_g: UncertainValue,
-    balance_point_in: UncertainValue,
-    fulcrum_in: float = FULCRUM_14_IN,
-) -> ClubNumbers:
-    """Club numbers from a total weight and a balance point."""
-    return club_numbers(weight_and_balance_bench(total_weight_g, balance_point_in, fulcrum_in))
+# Club numbers straight from the readings of each bench method (same arguments as the builders).
+club_from_two_supports = _numbers_from(two_supports_bench)
+club_from_lever = _numbers_from(lever_bench)
+club_from_weight_and_balance = _numbers_from(weight_and_balance_bench)
