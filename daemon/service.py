@@ -93,6 +93,7 @@ class DeviceRuntime:
     sample_rate_hz: float | None = None
     last_value: float | None = None
     last_t_mono_s: float | None = None
+    failed_opens: int = 0  # since the device was last connected: drives the reopen backoff
 
 
 class Service:
@@ -274,9 +275,10 @@ class Service:
                 retry=retry_if_exception_type(DriverError),
                 # At least max_gap_s between a loss and the reopen: the capture engine then
                 # restarts every window, so none joins samples across the disconnect.
-                wait=wait_exponential(
-                    multiplier=0.1, min=self._reopen_min_wait_s, max=RECONNECT_MAX_WAIT_S
-                ),
+                # The backoff counts failed opens since the device was last up, not every loss
+                # ever: otherwise it stuck at the maximum after a few unplugs and a replugged
+                # device waited 5 s (found by tests/bench/drills.py, 50 unplugs).
+                wait=lambda state: self.reopen_wait_s(runtime),
                 before_sleep=lambda state: self._device_down(runtime, state.outcome),
             ):
                 with attempt:
@@ -322,6 +324,11 @@ class Service:
     def _reopen_min_wait_s(self) -> float:
         return max(0.2, 1.2 * self.config.capture.max_gap_s)
 
+    def reopen_wait_s(self, runtime: DeviceRuntime) -> float:
+        """Seconds before the next open of a lost device: exponential in its failed opens."""
+        backoff = 0.1 * 2.0 ** min(runtime.failed_opens, 16)
+        return min(RECONNECT_MAX_WAIT_S, max(self._reopen_min_wait_s, backoff))
+
     async def _read_session(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
         """Read one session until it fails; raises TransportError when the port goes."""
         assert self.pipeline is not None
@@ -341,6 +348,7 @@ class Service:
 
     def _device_up(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
         runtime.connected = True
+        runtime.failed_opens = 0
         runtime.rate_t0, runtime.rate_n0 = self._clock(), runtime.readings
         name = runtime.config.name
         log.info("device %s connected (%s)", name, session.transport.description)
@@ -353,6 +361,8 @@ class Service:
         was_connected = runtime.connected
         runtime.connected = False
         runtime.sample_rate_hz = None
+        if not was_connected:
+            runtime.failed_opens += 1
         if was_connected:
             log.warning("device %s lost: %s", name, err)
         assert self.pipeline is not None
