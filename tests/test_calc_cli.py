@@ -12,6 +12,7 @@ from typing import Any, cast
 
 import pytest
 
+from daemon.cli import main
 from daemon.commands import calc
 
 BASE_KEYS = {
@@ -236,20 +237,20 @@ def test_length_change_adds_points(capsys: pytest.CaptureFixture[str], tmp_path:
 
 def test_pendulum_moi(capsys: pytest.CaptureFixture[str]) -> None:
     doc = calc_json(
-        ["--weight", "430", "--balance-point", "29", "--period", "1.55", "--pivot", "1",
+        ["--weight", "430", "--balance-point", "29", "--period", "1.85", "--pivot", "1",
          "--period-u", "0.002"],
         capsys,
     )  # fmt: skip
     # Physical pendulum plus parallel axis (phys.libretexts.org, physical pendulum):
     # I_butt = m g d T^2 / (4 pi^2) + m p (2 BP - p), d = BP - p, g = 9.80665 m/s^2 (3rd CGPM).
     g_in_s2 = 9.80665 / 0.0254
-    i_butt = 430 * g_in_s2 * 28 * 1.55**2 / (4 * math.pi**2) + 430 * 1 * (2 * 29 - 1)
+    i_butt = 430 * g_in_s2 * 28 * 1.85**2 / (4 * math.pi**2) + 430 * 1 * (2 * 29 - 1)
     assert doc["moi_butt_g_in2"] == pytest.approx(i_butt, rel=1e-9)
     # 1 kg*cm^2 = 1000 g / 2.54^2 in^2 = 155.0003 g*in^2 (derived from the exact inch).
     assert doc["moi_butt_kg_cm2"] == pytest.approx(doc["moi_butt_g_in2"] / 155.0003, rel=1e-6)
     # Only the period is uncertain: u(I) = 2 u(T)/T * I_pivot (GUM eq. 12), expanded k = 2.
     i_pivot = i_butt - 430 * 1 * (2 * 29 - 1)
-    assert doc["moi_butt_g_in2_u"] == pytest.approx(2 * 2 * 0.002 / 1.55 * i_pivot, rel=1e-5)
+    assert doc["moi_butt_g_in2_u"] == pytest.approx(2 * 2 * 0.002 / 1.85 * i_pivot, rel=1e-5)
 
 
 CLUB = ["--weight", "400", "--balance-point", "29"]
@@ -355,3 +356,19 @@ def test_uncertainty_digits(u: float, value_decimals: int, text: str) -> None:
     # Two significant digits suffice for an uncertainty (GUM, JCGM 100:2008, 7.2.6); never
     # fewer decimals than the value beside it, so a small one does not print as 0.0.
     assert calc.uncertainty_text(u, value_decimals) == text
+
+
+def test_club_geometry_that_cannot_exist_is_refused(capsys: pytest.CaptureFixture[str]) -> None:
+    # A balance point beyond the club's length, or a correction placed off the club: exit 2,
+    # one line naming the option.
+    assert main(["calc", *CLUB, "--length", "20", "--target", "D2"]) == 2
+    assert "--length" in capsys.readouterr().err
+    assert main(["calc", *CLUB, "--length", "37", "--target", "D2", "--at", "40"]) == 2
+    assert "--at" in capsys.readouterr().err
+
+
+def test_a_slipped_unit_suffix_draws_a_warning(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["calc", "--weight", "412kg", "--balance-point", "29"]) == 0
+    assert "warning" in capsys.readouterr().err
+    assert main(["calc", "--weight", "412g", "--balance-point", "29"]) == 0
+    assert "warning" not in capsys.readouterr().err

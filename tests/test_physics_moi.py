@@ -90,8 +90,9 @@ def test_period_for_moi_is_the_inverse(moi_kg_cm2: float, pivot_in: float, deg: 
 
 def test_local_gravity_matters() -> None:
     # The pendulum scales with g: a 0.5 % higher g gives a 0.5 % higher MOI about the pivot.
-    a = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78).moi_about_pivot_g_in2(1.6)
-    b = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78 * 1.005).moi_about_pivot_g_in2(1.6)
+    # 1.85 s: about what an iron near 2,700 kg*cm^2 about the butt shows from a 1 in pivot.
+    a = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78).moi_about_pivot_g_in2(1.85)
+    b = Pendulum(420.0, 29.0, 1.0, gravity_m_s2=9.78 * 1.005).moi_about_pivot_g_in2(1.85)
     assert b / a == pytest.approx(1.005)
 
 
@@ -115,8 +116,22 @@ def test_bad_pendulum_inputs() -> None:
 def test_moi_uncertainty_from_the_period() -> None:
     # I_pivot is proportional to T^2: u(I_pivot)/I_pivot = 2 u(T)/T (GUM eq. 12).
     bench = weight_and_balance_bench(U(420.0), U(29.0))
-    _value, u = moi_about_butt_numbers(bench, U(1.0), U(1.6, 0.001))
+    _value, u = moi_about_butt_numbers(bench, U(1.0), U(1.85, 0.001))
     # I_pivot = m g d T^2 / (4 pi^2), d = 29 - 1 in (textbook physical pendulum).
-    i_pivot = 420.0 * G_IN_S2 * 28.0 * 1.6**2 / (4 * math.pi**2)
-    assert u == pytest.approx(2 * (2 * 0.001 / 1.6) * i_pivot, rel=1e-5)
-    assert moi_about_butt_numbers(bench, U(1.0), U(1.6))[1] is None
+    i_pivot = 420.0 * G_IN_S2 * 28.0 * 1.85**2 / (4 * math.pi**2)
+    assert u == pytest.approx(2 * (2 * 0.001 / 1.85) * i_pivot, rel=1e-5)
+    assert moi_about_butt_numbers(bench, U(1.0), U(1.85))[1] is None
+
+
+def test_a_period_shorter_than_a_point_mass_at_the_cg_is_refused() -> None:
+    # No body swings faster than a simple pendulum of length d = BP - pivot, since
+    # I_pivot = I_cg + m d^2 >= m d^2 (textbook physical pendulum + parallel axis):
+    # T_min = 2 pi sqrt(d / g). 412 g, BP 29.1 in, pivot 1 in: d = 28.1 in = 0.71374 m,
+    # T_min = 2 pi sqrt(0.71374 / 9.80665) = 1.6951 s (worked by hand from the formula).
+    pendulum = Pendulum(412.0, 29.1, 1.0)
+    assert pendulum.shortest_period_s == pytest.approx(1.6951, abs=5e-4)
+    with pytest.raises(PendulumError, match="shorter than any club"):
+        pendulum.moi_about_butt_g_in2(1.0)
+    # Just above the bound is a (very concentrated) club, and its MOI is about m*BP^2.
+    i_butt = pendulum.moi_about_butt_g_in2(pendulum.shortest_period_s * (1 + 1e-9))
+    assert i_butt == pytest.approx(412.0 * 29.1**2, rel=1e-6)

@@ -64,6 +64,10 @@ from daemon.units import (
 )
 
 PROG = "heft calc"
+# Clubs weigh from about 250 g (a light driver) to 600 g (a heavy putter): common practice, no
+# source. Outside a wider band than that, heft calc warns (it still answers).
+PLAUSIBLE_CLUB_WEIGHT_G = (150.0, 1000.0)
+
 # Where a correction goes when neither --at nor --length says: the head of a mid-length iron.
 DEFAULT_CORRECTION_AT_IN = 36.0
 
@@ -511,6 +515,12 @@ def calculate(args: argparse.Namespace) -> CalcResult:
         club = club_numbers(bench)
     except StaticsError as err:
         raise CalcInputError(f"{_METHODS[method].options}: {err}") from None
+    length_in = build.length_in if build else _length(args, "length")
+    if length_in is not None and not 0.0 < club.balance_point_in < length_in:
+        raise CalcInputError(
+            f"--length: a club {length_in:g} in long cannot balance {club.balance_point_in:.2f} in "
+            "from the butt; check --length and the readings"
+        )
     m12 = bench.propagate(lambda s: moment_12in_oz_in(s.total_weight_g, s.balance_point_in))
 
     correction = None
@@ -524,7 +534,8 @@ def calculate(args: argparse.Namespace) -> CalcResult:
         except (SwingweightLabelError, SwingweightRangeError) as err:
             raise CalcInputError(f"--target: {err}") from None
         at_in = _length(args, "at")
-        length_in = build.length_in if build else _length(args, "length")
+        if at_in is not None and length_in is not None and not 0.0 <= at_in <= length_in:
+            raise CalcInputError(f"--at: {at_in:g} in is off a club {length_in:g} in long")
         # A position read off the club (--at, or the head found from --length) carries the
         # position uncertainty; the built-in default is an assumption, not a reading.
         at_u = u.position_in
@@ -719,6 +730,16 @@ def run(args: argparse.Namespace) -> int:
     except CalcInputError as err:
         print(f"{PROG}: error: {err}", file=sys.stderr)
         return 2
+    weight_g = result.club.total_weight_g
+    if not PLAUSIBLE_CLUB_WEIGHT_G[0] <= weight_g <= PLAUSIBLE_CLUB_WEIGHT_G[1]:
+        # Not an error (a training club or a component may be weighed), but a slipped unit
+        # suffix (412kg for 412g) should not pass unnoticed.
+        print(
+            f"{PROG}: warning: a total weight of {weight_g:g} g is outside the "
+            f"{PLAUSIBLE_CLUB_WEIGHT_G[0]:g}-{PLAUSIBLE_CLUB_WEIGHT_G[1]:g} g of golf clubs; "
+            "check the unit suffixes",
+            file=sys.stderr,
+        )
     if args.json:
         json.dump(result_as_json(result), sys.stdout, indent=2)
         sys.stdout.write("\n")

@@ -93,8 +93,22 @@ class Pendulum:
         """I about the pivot from the measured period (amplitude corrected), in g*in^2."""
         if not period_s > 0:
             raise PendulumError(f"the period must be positive, not {period_s:g} s")
+        if period_s < self.shortest_period_s:
+            # I_pivot = I_cg + m*d^2 >= m*d^2: no body swings faster than a point mass at its CG.
+            raise PendulumError(
+                f"a period of {period_s:g} s is shorter than any club of this weight and balance "
+                f"point can swing about a pivot at {self.pivot_in:g} in (at least "
+                f"{self.shortest_period_s:.3f} s); check the period and the pivot"
+            )
         t0 = period_s / large_swing_factor(self.amplitude_rad)
         return self._stiffness_g_in2_s2 * t0**2 / (4.0 * math.pi**2)
+
+    @property
+    def shortest_period_s(self) -> float:
+        """The period of a point mass at the balance point: the lower bound for any real club."""
+        d = self.cg_below_pivot_in
+        t0 = 2.0 * math.pi * math.sqrt(d / m_to_in(self.gravity_m_s2))
+        return t0 * large_swing_factor(self.amplitude_rad)
 
     def moi_about_butt_g_in2(self, period_s: float) -> float:
         """MOI about the butt in g*in^2 from the period measured about the pivot."""
