@@ -125,3 +125,19 @@ def test_duration_stops_by_itself() -> None:
     out, err = proc.communicate(timeout=20)
     assert proc.returncode == 0, err
     assert out.startswith("scanner device 'scanner0' on /dev/pts/")
+
+
+def test_link_never_replaces_a_users_file(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    notes = tmp_path / "notes.txt"
+    notes.write_text("important\n")
+    with pytest.raises(SystemExit) as stop:
+        main(["simulate", "scanner", "--link", str(notes), "--duration", "1"])
+    assert stop.value.code == 2
+    assert "--link" in capsys.readouterr().err
+    assert notes.read_text() == "important\n"
+    # A stale link to a pseudo-terminal from an earlier run is fine to replace.
+    stale = tmp_path / "beam0"
+    stale.symlink_to("/dev/pts/999")
+    assert main(["simulate", "scanner", "--link", str(stale), "--duration", "0.5"]) == 0

@@ -43,7 +43,7 @@ from drivers.sim.physics import (
     cycle_placements,
     make_geometry,
 )
-from drivers.sim.pty_server import PtyDevice
+from drivers.sim.pty_server import PtyDevice, check_link_replaceable
 
 HID = "hid_pos"
 # Display exponent of the simulated HID scale per unit: 0.1 g, 0.01 oz, 0.001 lb ...
@@ -212,6 +212,11 @@ def run(args: argparse.Namespace) -> int:
                      f"{', '.join(PROTOCOLS)}, {HID}")
     if args.link is not None and not args.link.parent.is_dir():
         parser.error(f"--link: folder {args.link.parent} does not exist")
+    if args.link is not None:
+        try:
+            check_link_replaceable(args.link)
+        except FileExistsError as err:
+            parser.error(f"--link: {err}")
     if args.bump_every < 0:
         parser.error("--bump-every: expected 0 (never) or a positive count")
     proto = args.protocol or "beam"

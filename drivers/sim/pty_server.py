@@ -40,6 +40,20 @@ from drivers.sim.devices import Frame, SimDevice
 _IDLE_WAKE_S = 0.05  # the longest the thread sleeps without checking for requests
 
 
+def check_link_replaceable(link: Path) -> None:
+    """Refuse a link path that holds anything but a (possibly stale) link to a pseudo-terminal.
+
+    The link is replaced atomically on every (re)plug; it must never clobber a user's file.
+    """
+    if not os.path.lexists(link):
+        return
+    if link.is_symlink() and str(link.readlink()).startswith("/dev/pts/"):
+        return
+    raise FileExistsError(
+        f"{link} exists and is not a link to a pseudo-terminal; refusing to replace it"
+    )
+
+
 class PtyDevice:
     """A simulated device on a pseudo-terminal, served from a background thread.
 
@@ -64,6 +78,8 @@ class PtyDevice:
     ) -> None:
         self.device = device
         self.link = Path(link) if link is not None else None
+        if self.link is not None:
+            check_link_replaceable(self.link)
         self._clock = clock
         self._origin_s = origin_s
         self._on_frame = on_frame
