@@ -24,7 +24,9 @@ from daemon.events import EventBus, LiveReading, MeasurementCaptured
 from drivers.reading import Flag
 from tui.app import HeftDashboard
 from tui.calibration import CalibrationScreen
-from tui.readout import VerdictBanner
+from tui.format import READ_ONLY_HINT
+from tui.mqtt_source import MqttSource
+from tui.readout import AlarmBanner, VerdictBanner
 from tui.scripted_bench import (
     JOBS,
     STATION,
@@ -33,6 +35,7 @@ from tui.scripted_bench import (
     session_events,
 )
 from tui.source import InProcessSource, ScriptedSource
+from tui.tables import AlarmsTable
 
 SIZE = (120, 40)
 
@@ -168,14 +171,21 @@ async def test_acknowledge_newest_alarm_from_live_and_selected_from_alarms_tab()
         assert source.sent[0] == AcknowledgeAlarm(command="ack_alarm", key=newest)
         await pilot.press("4")
         await pilot.pause()
-        # History, newest first: out-of-spec cleared, out-of-spec raised, calibration due, ...
-        await pilot.press("down")
-        await pilot.press("a")  # a cleared alarm: nothing to acknowledge
-        await pilot.pause(0.2)
-        assert len(source.sent) == 1
-        await pilot.press("down", "a")
+        table = app.query_one(AlarmsTable)
+        # History, newest first, starts with a cleared out-of-spec alarm; the cursor starts on
+        # the newest line of an active, unacknowledged alarm instead.
+        assert table.cursor_row > 0
+        selected = table.selected_alarm_key()
+        assert selected is not None and not app.state.alarms[selected].acknowledged
+        await pilot.press("a")
         await settle(pilot, app, lambda: len(source.sent) == 2)
-        assert source.sent[1] == AcknowledgeAlarm(command="ack_alarm", key="calibration_due:beam/1")
+        assert source.sent[1] == AcknowledgeAlarm(command="ack_alarm", key=selected)
+        table.move_cursor(row=0)  # the cleared alarm: nothing to acknowledge
+        await pilot.pause()
+        assert table.selected_alarm_key() not in app.state.alarms
+        await pilot.press("a")
+        await pilot.pause(0.2)
+        assert len(source.sent) == 2
         assert newest == "device_offline:scan"
 
 
@@ -183,11 +193,17 @@ async def test_read_only_dashboard_sends_nothing() -> None:
     app, source = make_app(commands_enabled=False)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot, app, lambda: len(app.state.unacknowledged()) == 2)
+        banner = app.query_one(AlarmBanner)
+        await settle(pilot, app, lambda: "ALARM" in str(banner.render()))
+        assert "acknowledge" not in str(banner.render())  # `a` would do nothing here
+        assert "read-only" in str(banner.render())
         await pilot.press("a", "t", "r", "c")
         await pilot.pause(0.2)
         assert source.sent == []
         assert not isinstance(app.screen, CalibrationScreen)
         assert "read-only" in app.sub_title
+        hints = [n.message for n in app._notifications]
+        assert hints and all(h == READ_ONLY_HINT for h in hints)
 
 
 async def test_keeps_up_with_four_channels_at_80_per_second() -> None:
@@ -315,3 +331,12 @@ async def test_bell_rings_on_fail_and_new_alarm_only_when_enabled() -> None:
                      and app.state.last_measurement.seq == 100)
         await pilot.pause(0.3)
         assert len(rings) == 2
+
+
+async def test_unreachable_broker_is_shown_with_the_retry() -> None:
+    # Port 1 on loopback: nothing listens there, the connection is refused at once.
+    app = HeftDashboard(MqttSource("mqtt://127.0.0.1:1"))
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, app, lambda: "cannot reach 127.0.0.1:1" in app.sub_title)
+        assert "retrying" in app.sub_title
+        assert "waiting for a station" in app.sub_title

@@ -2,14 +2,16 @@
 
 from __future__ import annotations
 
-from daemon.events import AlarmKind, LiveReading
+from daemon.events import AlarmKind, CaptureState, CaptureStateChanged, LiveReading
 from daemon.measurement import Verdict
 from drivers.reading import Flag
-from tui.format import alarm_banner_text, verdict_banner, with_u
+from tui.calibration import live_text
+from tui.format import alarm_banner_text, capture_text, verdict_banner, with_u
 from tui.readout import gauge_text
 from tui.scripted_bench import JOB, STATION, out_of_spec_event, session_events
 from tui.set_view import latest_per_club, points_for
 from tui.state import DashboardState, club_order_key
+from tui.tables import last_reading_text
 
 
 def test_session_folds_into_state() -> None:
@@ -100,3 +102,38 @@ def test_set_points_keep_the_latest_of_each_club() -> None:
     for p in centred:
         assert p.low is not None and p.high is not None
         assert abs(p.low + p.high) < 1e-9  # centred on the band
+
+
+def test_settling_shows_the_load_now_not_the_load_at_detection() -> None:
+    settling = CaptureStateChanged(STATION, CaptureState.SETTLING, 1.0, "load 33.0 g")
+    assert capture_text(settling, 392.04) == "SETTLING - hands off (load 392.0 g)"
+    assert capture_text(settling, None) == "SETTLING - hands off"
+    holding = CaptureStateChanged(STATION, CaptureState.HOLDING, 2.0, "not a club: too light")
+    assert capture_text(holding, 5.0).endswith("(not a club: too light)")
+    state = DashboardState()
+    state.apply(LiveReading(STATION, "beam/0", 1.0, 120.5, Flag.NONE))
+    state.apply(LiveReading(STATION, "beam/1", 1.0, 271.5, Flag.NONE))
+    assert state.load_g() == 392.0
+    assert state.device_reading_g("beam") == 120.5
+    assert state.device_reading_g("scan") is None
+
+
+def test_device_last_reading_has_a_unit() -> None:
+    assert last_reading_text(44881.0, None) == "44881 counts"
+    assert last_reading_text(44881.0, 120.456) == "120.46 g"
+    assert last_reading_text(None, None) == "-"
+
+
+def test_zero_step_tells_the_operator_to_lift_a_club() -> None:
+    loaded = live_text("beam/0", 392.0, "step-zero").plain
+    assert "392.00 g" in loaded and "lift the club" in loaded
+    assert "lift" not in live_text("beam/0", 0.4, "step-zero").plain
+    assert "lift" not in live_text("beam/0", 392.0, "step-span").plain  # the mass is meant to be on
+
+
+def test_read_only_alarm_banner_does_not_offer_acknowledge() -> None:
+    state = DashboardState()
+    state.apply_all(session_events())
+    text = alarm_banner_text(state.unacknowledged(), can_acknowledge=False)
+    assert text.startswith("ALARM 1 of 2 (read-only)")
+    assert "acknowledge" not in text

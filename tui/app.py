@@ -9,19 +9,22 @@ event loop.
 from __future__ import annotations
 
 import logging
+import time
 from pathlib import Path
 from typing import ClassVar
 
-from textual import work
+from textual import events, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Footer, Header, TabbedContent, TabPane
 
 from daemon.command_api import AcknowledgeAlarm, Command, Rearm, SelectJob, Tare
+from daemon.events import CaptureState
 from daemon.measurement import Verdict
 from tui.calibration import CalibrationScreen
 from tui.channels import ChannelsPanel
+from tui.format import READ_ONLY_HINT
 from tui.help import HelpScreen
 from tui.pickers import JobPicker, StationPicker
 from tui.readout import AlarmBanner, CaptureLine, Readout, ToleranceGauge, VerdictBanner
@@ -35,6 +38,7 @@ log = logging.getLogger(__name__)
 REFRESH_HZ = 10.0
 BACKFILL = 100
 TABS = ("live", "set", "devices", "alarms")
+COMMAND_KEYS = frozenset({"a", "j", "c", "r", "t"})
 COMMAND_ACTIONS = frozenset({"acknowledge", "select_job", "calibrate", "rearm", "tare"})
 DASHBOARD_ACTIONS = COMMAND_ACTIONS | {"tab", "station", "toggle_bell", "help"}
 
@@ -120,7 +124,8 @@ class HeftDashboard(App[None]):
     def _set_subtitle(self) -> None:
         ro = "" if self.source.commands_enabled else "  (read-only)"
         station = self.state.station or "waiting for a station"
-        self.sub_title = f"{station} · {self.source.label}{ro}"
+        link = self.source.connection_text(time.monotonic()) or self.source.label
+        self.sub_title = f"{station} · {link}{ro}"
 
     # -- events in ------------------------------------------------------------------------
 
@@ -166,8 +171,7 @@ class HeftDashboard(App[None]):
 
     def _refresh_views(self) -> None:
         s, rev = self.state, self.state.rev
-        if self._moved("stations", rev.stations):
-            self._set_subtitle()
+        self._set_subtitle()  # cheap; Textual redraws the header only when the text changed
         if self._moved("measurements", rev.measurements):
             last = s.last_measurement
             self.query_one(VerdictBanner).show(last)
@@ -177,20 +181,25 @@ class HeftDashboard(App[None]):
             self.query_one(MeasurementsTable).show(s.measurements)
             self._drawn.pop("set", None)
             self._ring_for_fail()
-        if self._moved("capture", rev.capture):
-            self.query_one(CaptureLine).show(s.capture)
+        settling = s.capture_state is CaptureState.SETTLING
+        if self._moved("capture", hash((rev.capture, rev.live if settling else 0))):
+            self.query_one(CaptureLine).show(s.capture, s.load_g())
         if self._moved("live", rev.live):
             if self.query_one(ChannelsPanel).show(s.channels):
                 self._drawn.pop("live", None)
             if isinstance(self.screen, CalibrationScreen):
                 self.screen.refresh_live()
         if self._moved("alarms", rev.alarms):
-            self.query_one(AlarmBanner).show(s.unacknowledged())
+            self.query_one(AlarmBanner).show(
+                s.unacknowledged(), can_acknowledge=self.source.commands_enabled
+            )
             self.query_one(AlarmsTable).show(s.alarm_history, s.alarms)
             self._ring_for_alarms()
-        if self._moved("devices", rev.devices):
-            self.query_one(DevicesTable).show(s.devices.values())
         tabs = self.query_one(TabbedContent)
+        # Last readings in grams come from the live traces: on its tab, once a second.
+        tick = int(time.monotonic()) if tabs.active == "devices" else 0
+        if self._moved("devices", hash((rev.devices, tick))):
+            self.query_one(DevicesTable).show(s.devices.values(), s.device_reading_g)
         if tabs.active == "set" and self._moved("set", rev.measurements):
             job = s.current_job()
             self.query_one(SetView).show(job, s.job_measurements(job))
@@ -225,12 +234,23 @@ class HeftDashboard(App[None]):
             return None
         return True
 
+    def on_key(self, event: events.Key) -> None:
+        """A command key on a read-only dashboard says why nothing happens."""
+        if (
+            event.key in COMMAND_KEYS
+            and not self.source.commands_enabled
+            and len(self.screen_stack) == 1
+        ):
+            self.notify(READ_ONLY_HINT, severity="warning")
+
     def action_tab(self, tab: str) -> None:
         self.query_one(TabbedContent).active = tab
         focus = {"live": MeasurementsTable, "devices": DevicesTable, "alarms": AlarmsTable}
         if tab in focus:
             self.query_one(focus[tab]).focus()
         self.refresh_views()
+        if tab == "alarms":  # `a` then acknowledges what is still active
+            self.query_one(AlarmsTable).select_newest_active(self.state.alarms)
 
     @work(group="commands")
     async def send_command(self, cmd: Command) -> None:
@@ -276,7 +296,12 @@ class HeftDashboard(App[None]):
             trace = self.state.channels.get(channel)
             return None if trace is None else trace.last_value_g
 
-        self.push_screen(CalibrationScreen(channels, self.source.send, live_value))
+        def closed(_: None) -> None:
+            self.source.calibrating(False)
+
+        note = self.source.calibrating(True)
+        screen = CalibrationScreen(channels, self.source.send, live_value, note=note)
+        self.push_screen(screen, closed)
 
     def action_rearm(self) -> None:
         self.send_command(Rearm(command="rearm"))

@@ -45,6 +45,22 @@ SendCommand = Callable[[Command], Awaitable[Reply]]
 LiveValue = Callable[[str], float | None]
 
 
+ZERO_LOAD_WARN_G = 10.0  # more than this on a channel to be zeroed: something is on it
+
+
+def live_text(channel: str, value_g: float | None, step: str) -> Text:
+    """The live line; on the zero step it tells the operator to lift a club that is still on."""
+    shown = "-" if value_g is None else f"{value_g:.2f} g"
+    text = Text(f"live reading of {channel}: {shown}")
+    if step == "step-zero" and value_g is not None and abs(value_g) > ZERO_LOAD_WARN_G:
+        text.append(
+            "  - a load is on it: lift the club off, keep hands off, wait until it reads"
+            " near 0 g, then zero",
+            style="bold #ffc24a",
+        )
+    return text
+
+
 def reply_lines(title: str, reply: Reply) -> list[str]:
     """Human lines for one step's reply (pure)."""
     lines = [f"{title}: {'accepted' if reply.ok else 'REFUSED'}"
@@ -81,8 +97,11 @@ class CalibrationScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "close", "Close calibration")]
 
-    def __init__(self, channels: list[str], send: SendCommand, live_value: LiveValue) -> None:
+    def __init__(
+        self, channels: list[str], send: SendCommand, live_value: LiveValue, *, note: str = ""
+    ) -> None:
         super().__init__()
+        self.note = note
         self.channels = channels
         self.send = send
         self.live_value = live_value
@@ -93,6 +112,8 @@ class CalibrationScreen(Screen[None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="cal-body"):
             yield Static("", id="cal-title")
+            if self.note:
+                yield Static(self.note, id="cal-note")
             yield Static("", id="cal-live")
             with ContentSwitcher(initial="step-pick", id="cal-steps"):
                 with Vertical(id="step-pick"):
@@ -149,8 +170,7 @@ class CalibrationScreen(Screen[None]):
         if self.channel is None:
             return
         value = self.live_value(self.channel)
-        shown = "-" if value is None else f"{value:.2f} g"
-        self.query_one("#cal-live", Static).update(Text(f"live reading of {self.channel}: {shown}"))
+        self.query_one("#cal-live", Static).update(live_text(self.channel, value, self.step))
 
     def _message(self, text: str, error: bool = False) -> None:
         msg = self.query_one("#cal-message", Static)

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from daemon.events import Alarm, AlarmKind, CaptureState
+from daemon.events import Alarm, AlarmKind, CaptureState, CaptureStateChanged
 from daemon.measurement import CheckResult, Measurement, Verdict
 from daemon.physics.swingweight import describe_points
 
@@ -121,8 +121,14 @@ def verdict_banner(m: Measurement | None) -> Banner:
     return Banner(VERDICT_WORDS[m.verdict], f"{who}: {reason}", VERDICT_CLASS[m.verdict])
 
 
-def alarm_banner_text(active_unacknowledged: list[Alarm]) -> str:
-    """Text of the alarm banner; empty when there is nothing to shout about."""
+READ_ONLY_HINT = "read-only: start heft dash with --commands to act"
+
+
+def alarm_banner_text(active_unacknowledged: list[Alarm], *, can_acknowledge: bool = True) -> str:
+    """Text of the alarm banner; empty when there is nothing to shout about.
+
+    A read-only dashboard does not advertise the acknowledge key (it would do nothing).
+    """
     if not active_unacknowledged:
         return ""
     first = active_unacknowledged[0]
@@ -130,7 +136,20 @@ def alarm_banner_text(active_unacknowledged: list[Alarm]) -> str:
     count = f" 1 of {more + 1}" if more else ""
     kind = ALARM_KIND_WORDS.get(first.kind, first.kind.value)
     # The key hint comes first: a long message is cut at the right edge, the hint never is.
-    return f"ALARM{count} [a: acknowledge]  {kind.upper()} - {first.source}: {first.message}"
+    hint = " [a: acknowledge]" if can_acknowledge else " (read-only)"
+    return f"ALARM{count}{hint}  {kind.upper()} - {first.source}: {first.message}"
+
+
+def capture_text(capture: CaptureStateChanged, load_g: float | None) -> str:
+    """The capture line: the state in words, with the load on the beam *now* while settling.
+
+    The service's detail for SETTLING is the load when the placement was first detected, which
+    is stale a moment later, so it is replaced by the current sum of the channels.
+    """
+    words = CAPTURE_WORDS[capture.state]
+    if capture.state is CaptureState.SETTLING:
+        return words + (f" (load {load_g:.1f} g)" if load_g is not None else "")
+    return words + (f" ({capture.detail})" if capture.detail else "")
 
 
 def alarm_state_word(alarm: Alarm) -> str:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import logging
+import math
 import time
 import uuid
 from urllib.parse import unquote, urlsplit
@@ -32,6 +33,7 @@ from daemon.events import (
     MeasurementCaptured,
 )
 from daemon.measurement import Measurement
+from daemon.mqtt_link import raise_if_cancel_requested
 from daemon.mqtt_settings import MqttSettings, TlsSettings
 from daemon.mqtt_topics import (
     ALARM_EVENT,
@@ -239,10 +241,25 @@ class MqttSource(EventSource):
     def _retrying(self, state: RetryCallState) -> None:
         err = state.outcome.exception() if state.outcome else None
         self.connected.clear()
-        self.status_text = f"broker unreachable ({err}); retrying"
+        wait_s = state.next_action.sleep if state.next_action else 0.0
+        self.retry_at_s = time.monotonic() + wait_s
+        self.status_text = f"cannot reach {self.settings.host}:{self.settings.port}"
+        log.info("%s (%s); retrying in %.1f s", self.status_text, err, wait_s)
+
+    def connection_text(self, now_s: float) -> str:
+        """connecting / connected / cannot reach host:port - retrying in N s."""
+        if self.connected.is_set():
+            return f"{self.label} connected"
+        if self.retry_at_s is None:
+            return f"{self.label} connecting"
+        left_s = self.retry_at_s - now_s
+        if left_s <= 0:
+            return f"{self.status_text} - retrying now"
+        return f"{self.status_text} - retrying in {math.ceil(left_s)} s"
 
     async def _run(self) -> None:
         while True:  # a session that ends cleanly (broker closed it) reconnects as well
+            raise_if_cancel_requested()
             async for attempt in AsyncRetrying(
                 retry=retry_if_exception_type(aiomqtt.MqttError),
                 wait=wait_exponential(multiplier=0.5, max=RETRY_MAX_WAIT_S),
@@ -261,8 +278,11 @@ class MqttSource(EventSource):
                               topics.alarm_event, topics.cmd_reply):
                     await client.subscribe(topic, qos=1)
                 await client.subscribe(topics.live_all, qos=0)
+                # A stop() that landed as a SUBACK did is lost inside aiomqtt; honour it here.
+                raise_if_cancel_requested()
                 self.connected.set()
                 self.status_text = "connected"
+                self.retry_at_s = None
                 async for message in client.messages:
                     self._on_message(message.topic.value, message.payload)
             finally:

@@ -12,10 +12,10 @@ from textual.widgets import Digits, Static
 from daemon.events import Alarm, CaptureState, CaptureStateChanged
 from daemon.measurement import CheckResult, Measurement, Verdict
 from tui.format import (
-    CAPTURE_WORDS,
     CHECK_NAMES,
     VERDICT_CLASS,
     alarm_banner_text,
+    capture_text,
     check_value_text,
     verdict_banner,
     with_u,
@@ -41,8 +41,8 @@ class VerdictBanner(Static):
 class AlarmBanner(Static):
     """Shown only while an alarm is active and unacknowledged; says so in words."""
 
-    def show(self, unacknowledged: list[Alarm]) -> None:
-        message = alarm_banner_text(unacknowledged)
+    def show(self, unacknowledged: list[Alarm], *, can_acknowledge: bool = True) -> None:
+        message = alarm_banner_text(unacknowledged, can_acknowledge=can_acknowledge)
         self.display = bool(message)
         self.update(Text(message))
 
@@ -50,14 +50,13 @@ class AlarmBanner(Static):
 class CaptureLine(Static):
     """The capture cycle's state in words."""
 
-    def show(self, capture: CaptureStateChanged | None) -> None:
+    def show(self, capture: CaptureStateChanged | None, load_g: float | None = None) -> None:
         self.remove_class(*(s.value for s in CaptureState))
         if capture is None:
             self.update("capture: no state yet")
             return
         self.add_class(capture.state.value)
-        detail = f" ({capture.detail})" if capture.detail else ""
-        self.update(Text(f"capture: {CAPTURE_WORDS[capture.state]}{detail}"))
+        self.update(Text(f"capture: {capture_text(capture, load_g)}"))
 
 
 class Readout(Vertical):

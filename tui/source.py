@@ -58,6 +58,7 @@ class EventSource(abc.ABC):
         self._inbox: asyncio.Queue[Event] | None = None
         self.dropped = 0
         self.status_text = ""
+        self.retry_at_s: float | None = None  # monotonic time of the next reconnect attempt
 
     @property
     def inbox(self) -> asyncio.Queue[Event]:
@@ -83,6 +84,18 @@ class EventSource(abc.ABC):
 
     async def start(self) -> None:  # noqa: B027 - optional hook
         """Begin delivering events (called once the app's loop runs)."""
+
+    def connection_text(self, now_s: float) -> str:
+        """The link to the service in words; '' when there is none to speak of (in-process)."""
+        return ""
+
+    def calibrating(self, active: bool) -> str:
+        """The calibration screen opened (True) or closed (False).
+
+        Returns a note for the operator about what the source did (e.g. the demo pausing its
+        placements), or ''.
+        """
+        return ""
 
     async def stop(self) -> None:  # noqa: B027 - optional hook
         """Stop delivering events and release connections."""
@@ -175,6 +188,8 @@ class InProcessSource(EventSource):
         jobs: job names from the station config, for the picker.
         subscription: a subscription taken before the service started, so that its first
             events (devices found, calibration alarms) are not missed; default: subscribe now.
+        on_calibrating: told when the calibration screen opens and closes (the demo pauses
+            its simulated placements); returns a note for the screen.
     """
 
     label = "in-process service"
@@ -188,8 +203,10 @@ class InProcessSource(EventSource):
         service_loop: asyncio.AbstractEventLoop | None = None,
         jobs: Sequence[str] = (),
         subscription: Subscription | None = None,
+        on_calibrating: Callable[[bool], str] | None = None,
     ) -> None:
         super().__init__()
+        self._on_calibrating = on_calibrating
         self._bus = bus
         self._early = subscription
         self._handle_command = handle_command
@@ -268,3 +285,6 @@ class InProcessSource(EventSource):
 
     def known_jobs(self) -> list[str]:
         return list(self._jobs)
+
+    def calibrating(self, active: bool) -> str:
+        return self._on_calibrating(active) if self._on_calibrating is not None else ""

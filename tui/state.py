@@ -156,6 +156,16 @@ class DashboardState:
     def capture_state(self) -> CaptureState | None:
         return self.capture.state if self.capture is not None else None
 
+    def load_g(self) -> float | None:
+        """The load on the beam now: the sum of every channel's latest value (None: no channel)."""
+        values = [t.last_value_g for t in self.channels.values() if t.last_value_g is not None]
+        return sum(values) if values else None
+
+    def device_reading_g(self, device: str) -> float | None:
+        """The latest value in grams of a device's first channel (``<device>/0``), if it reports."""
+        trace = self.channels.get(f"{device}/0") or self.channels.get(device)
+        return None if trace is None else trace.last_value_g
+
     def active_alarms(self) -> list[Alarm]:
         """Active alarms, unacknowledged first, newest first within each group."""
         alarms = sorted(self.alarms.values(), key=lambda a: a.time_utc, reverse=True)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 
 from rich.text import Text
 from textual.coordinate import Coordinate
@@ -71,11 +71,23 @@ class MeasurementsTable(_Table):
         )
 
 
+def last_reading_text(raw: float | None, grams: float | None) -> str:
+    """A device's last reading with its unit: grams when known, else the raw value, labelled."""
+    if grams is not None:
+        return f"{grams:.2f} g"
+    if raw is None:
+        return "-"
+    return f"{raw:.0f} counts" if float(raw).is_integer() else f"{raw:g} (raw)"
+
+
 class DevicesTable(_Table):
     COLUMNS = ("device", "state", "port", "rate /s", "frame errors", "last reading",
                "model", "firmware")
 
-    def show(self, devices: Iterable[DeviceStatus]) -> None:
+    def show(
+        self, devices: Iterable[DeviceStatus], grams: Callable[[str], float | None] = lambda _: None
+    ) -> None:
+        """``grams(device)`` gives its latest live value in grams, when it has a load channel."""
         self._rebuild(
             (
                 d.device,
@@ -86,7 +98,7 @@ class DevicesTable(_Table):
                     d.port,
                     _num(d.sample_rate_hz, 1),
                     str(d.frame_errors),
-                    _num(d.last_value, 2),
+                    last_reading_text(d.last_value, grams(d.device)),
                     d.model or "-",
                     d.firmware or "-",
                 ),
@@ -124,6 +136,17 @@ class AlarmsTable(_Table):
                 )
             )
         self._rebuild(rows)
+
+    def select_newest_active(self, active: dict[str, Alarm]) -> None:
+        """Put the cursor on the newest line of an active alarm (unacknowledged first)."""
+        keys = [self.coordinate_to_cell_key(Coordinate(r, 0)).row_key.value or ""
+                for r in range(self.row_count)]
+        alarms = [k.split("|", 1)[1] for k in keys]
+        for unacknowledged_only in (True, False):
+            for row, key in enumerate(alarms):
+                if key in active and not (unacknowledged_only and active[key].acknowledged):
+                    self.move_cursor(row=row, animate=False)
+                    return
 
     def selected_alarm_key(self) -> str | None:
         if not self.row_count:
