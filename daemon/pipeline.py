@@ -28,7 +28,7 @@ import logging
 import math
 import uuid
 from collections import deque
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 
@@ -63,6 +63,7 @@ from daemon.physics.statics import StaticsError
 from daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
 from daemon.records import CalibrationRecord
 from daemon.specs import judge
+from daemon.stillness import motion
 from daemon.units import UnitError, parse_quantity
 from daemon.version import __version__
 from drivers.reading import ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
@@ -98,6 +99,7 @@ class _Group:
 class _ChannelState:
     recent: deque[tuple[float, float]] = field(default_factory=lambda: deque(maxlen=RECENT_SAMPLES))
     tare_g: float = 0.0
+    counts: bool = False  # the device reports raw counts (a load cell), not grams
 
 
 class BenchPipeline:
@@ -237,7 +239,8 @@ class BenchPipeline:
         flags = r.flags
         if r.usable and math.isfinite(r.value):
             state.recent.append((r.t_mono_s, r.value))  # raw: calibration windows use counts
-        if r.kind is ValueKind.COUNTS:
+        state.counts = r.kind is ValueKind.COUNTS
+        if state.counts:
             record = self.calibrations.get(channel)
             if record is None or not usable(record):
                 return  # no span yet: counts cannot become grams (alarm raised by the service)
@@ -452,7 +455,9 @@ class BenchPipeline:
     def tare(self, device: str | None, window_s: float = 0.5) -> list[str]:
         """Take the mean of the last ``window_s`` of each channel (of ``device``) as its tare.
 
-        Returns the channels tared; raises SelectionError when one has no recent readings.
+        Returns the channels tared; raises SelectionError when one has no recent readings or
+        was moving during the window (a tare taken mid-motion offsets every later weight), and
+        then tares none.
         """
         chans = [c for c in self._channels if device is None or c.split("/")[0] == device]
         if not chans:
@@ -462,6 +467,11 @@ class BenchPipeline:
             gross = self.recent_grams(ch, window_s)
             if not gross:
                 raise SelectionError(f"{ch} has no recent readings to tare on")
+            why = self.motion(ch, gross, in_grams=not self._channels[ch].counts
+                              or usable(self.calibrations.get(ch)))
+            if why is not None:
+                raise SelectionError(f"{ch} was moving during the tare: {why}; "
+                                     "hold it still and try again")
             tares[ch] = sum(gross) / len(gross)
         for ch, value in tares.items():
             self._channels[ch].tare_g = value
@@ -498,6 +508,30 @@ class BenchPipeline:
         if record is not None and usable(record):
             return [counts_to_g(record, v) for v in raw]
         return raw
+
+    def noise_g(self, channel: str) -> float:
+        """The channel's reading noise (rms, g): learned by its capture engine, else the prior."""
+        group = self._group_of.get(channel)
+        if group is None:
+            return self.config.capture.noise_for(channel)
+        return group.engine.noise_g[channel]
+
+    def motion(self, channel: str, values: Sequence[float], *, in_grams: bool) -> str | None:
+        """Why ``values`` of ``channel`` are not a still window, or None (daemon.stillness).
+
+        ``in_grams``: the values are grams; else raw counts, judged in grams when the channel
+        has a span and by the scale-free test when it has none.
+        """
+        units: float | None = 1.0
+        if not in_grams:
+            record = self.calibrations.get(channel)
+            units = record.counts_per_g if record is not None and usable(record) else None
+        return motion(
+            values,
+            units_per_g=units,
+            noise_g=self.noise_g(channel),
+            division_g=self.config.capture.division_for(channel),
+        )
 
     @property
     def last_t(self) -> float:

@@ -549,16 +549,27 @@ class Service:
             raise SelectionError(f"{channel} is already being calibrated")
         return channel
 
-    async def _window(self, channel: str) -> CountsWindow:
-        """Raw counts over the next CALIBRATION_WINDOW_S seconds."""
+    async def _window(self, channel: str, step: str) -> CountsWindow:
+        """Raw counts over the next CALIBRATION_WINDOW_S seconds, refused unless still.
+
+        A window with a load lifted, set down or swinging in it would average the motion into
+        the zero or span and offset every later weight (daemon.stillness says when it is still).
+        """
         assert self.pipeline is not None
         self._calibrating.add(channel)
         try:
             start = self.pipeline.last_t
             await asyncio.sleep(CALIBRATION_WINDOW_S)
-            return CountsWindow.of(self.pipeline.recent_raw(channel, start + 1e-9))
+            counts = self.pipeline.recent_raw(channel, start + 1e-9)
         finally:
             self._calibrating.discard(channel)
+        window = CountsWindow.of(counts)
+        why = self.pipeline.motion(channel, counts, in_grams=False)
+        if why is not None:
+            raise CalibrationError(
+                f"{channel} was moving during the {step}: {why}; hold it still and try again"
+            )
+        return window
 
     async def _store_calibration(self, record: CalibrationRecord) -> None:
         assert self.store is not None
@@ -571,7 +582,12 @@ class Service:
             raise CalibrationError(
                 f"{channel} has a load on it; lift the club off and zero with the supports empty"
             )
-        window = await self._window(channel)
+        window = await self._window(channel, "zero")
+        if self.pipeline.is_loaded(channel):
+            raise CalibrationError(
+                f"{channel} was loaded during the zero; lift the club off and zero with the "
+                "supports empty"
+            )
         current = self.pipeline.calibrations.get(channel)
         self._check_zero_shift(channel, window, current)
         record = zero_record(
@@ -612,7 +628,7 @@ class Service:
         zero = self._pending_zero.get(channel) or current
         if zero is None:
             raise CalibrationError(f"{channel} has no zero; run calibrate_zero with it empty first")
-        window = await self._window(channel)
+        window = await self._window(channel, "span")
         reference = ReferenceMass(
             mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
         )
@@ -634,7 +650,7 @@ class Service:
         current = self.pipeline.calibrations.get(channel)
         if current is None or not usable(current):
             raise CalibrationError(f"{channel} has no span yet; calibrate the span first")
-        window = await self._window(channel)
+        window = await self._window(channel, "verify")
         reference = ReferenceMass(
             mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
         )

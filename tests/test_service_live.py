@@ -415,3 +415,29 @@ async def test_heft_run_stops_cleanly_on_sigterm(tmp_path: Path) -> None:
     assert b"Traceback" not in rest
     with Store(tmp_path / "heft.db") as store:
         assert store.integrity_check() == "ok"
+
+
+async def test_a_zero_whose_window_sees_a_club_laid_down_is_refused(tmp_path: Path) -> None:
+    # QA found a first zero accepted with a club lifted during its 1.5 s window ("zeroed at
+    # 35736 counts"): every later club then read ~270 g low. The window must be still.
+    async with bench(tmp_path, [], calibrated=False) as (svc, pty, _events):
+        await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
+        await asyncio.sleep(0.3)
+        zero = asyncio.create_task(
+            svc.handle_command(api.CalibrateZero(command="calibrate_zero", channel="beam/1"))
+        )
+        await wait_until(lambda: "beam/1" in svc._calibrating, what="zero window open")
+        with pty.locked() as device:  # a club laid down inside the window
+            device.timeline.place(Club(405.0, 29.2), pty.bench_time_s() + 0.3)
+        reply = await asyncio.wait_for(zero, timeout=30)
+        assert not reply.ok
+        assert reply.message.startswith("beam/1 was moving during the zero:"), reply.message
+        assert "hold it still" in reply.message
+        assert svc.store is not None
+        assert svc.store.calibrations("beam/1") == []  # nothing recorded
+        # Still again (the club settled on the beam): the same command is taken.
+        await asyncio.sleep(2.5)
+        again = await svc.handle_command(
+            api.CalibrateZero(command="calibrate_zero", channel="beam/1")
+        )
+        assert again.ok, again.message
