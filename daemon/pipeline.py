@@ -137,7 +137,8 @@ class BenchPipeline:
         self.spec_name: str | None = config.active_spec_name()
         self.club: str | None = config.club
         self.club_id: str | None = None
-        self.balance_point_in: float | None = None
+        self.balance_point_in: float | None = None  # waiting for its weighing
+        self.entered_balance_point_in: float | None = None  # the last one entered (kept)
         self._balance_point_t: float | None = None
         self.device_info: dict[str, DeviceInfo] = {}
         self.calibrations: dict[str, CalibrationRecord] = {}
@@ -446,7 +447,7 @@ class BenchPipeline:
             raise SelectionError(str(err)) from None
         if not 0 < bp < 60:
             raise SelectionError(f"balance point {bp:g} in is not between 0 and 60 in")
-        self.balance_point_in = bp
+        self.balance_point_in = self.entered_balance_point_in = bp
         t = self._last_t if t_mono_s is None else t_mono_s
         weighing = self._pending.get("weight")
         if weighing is not None and t - weighing.t_s <= geometry.pairing_window_s:

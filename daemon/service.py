@@ -94,6 +94,7 @@ class DeviceRuntime:
     last_value: float | None = None
     last_t_mono_s: float | None = None
     failed_opens: int = 0  # since the device was last connected: drives the reopen backoff
+    down_logged: bool = False  # this outage has been logged (once, not once per retry)
 
 
 class Service:
@@ -349,6 +350,7 @@ class Service:
     def _device_up(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
         runtime.connected = True
         runtime.failed_opens = 0
+        runtime.down_logged = False
         runtime.rate_t0, runtime.rate_n0 = self._clock(), runtime.readings
         name = runtime.config.name
         log.info("device %s connected (%s)", name, session.transport.description)
@@ -365,6 +367,12 @@ class Service:
             runtime.failed_opens += 1
         if was_connected:
             log.warning("device %s lost: %s", name, err)
+        elif not runtime.down_logged:  # a port that never opened (wrong path, unplugged)
+            log.warning(
+                "device %s: cannot open %s (%s); retrying every few seconds",
+                name, runtime.config.address, err,
+            )
+        runtime.down_logged = True
         assert self.pipeline is not None
         self._dispatch(self.pipeline.device_lost(name))
         self._alarm_set(
@@ -491,7 +499,8 @@ class Service:
             return f"next club is {p.club_id}", {"club_id": p.club_id}
         if isinstance(cmd, api.SetBalancePoint):
             self._dispatch(p.set_balance_point(cmd.balance_point))
-            return "balance point set", {"balance_point_in": p.balance_point_in}
+            bp = p.entered_balance_point_in
+            return f"balance point {bp:.2f} in set", {"balance_point_in": bp}
         if isinstance(cmd, api.AcknowledgeAlarm):
             alarm = p.alarms.acknowledge(cmd.key)
             self._dispatch(p.drain())

@@ -10,8 +10,12 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import logging
 from pathlib import Path
 
+import pytest
+
+from daemon.events import AlarmKind
 from daemon.service import RECONNECT_MAX_WAIT_S, Service
 from drivers.sim.pty_server import PtyDevice
 from tests.mqtt_helpers import wait_until
@@ -44,3 +48,27 @@ async def test_backoff_restarts_after_each_reconnect(tmp_path: Path) -> None:
         with contextlib.suppress(asyncio.CancelledError):
             await task
         await asyncio.to_thread(pty.close)
+
+
+async def test_a_port_that_never_opens_is_logged_once_and_raises_the_offline_alarm(
+    tmp_path: Path, caplog: pytest.LogCaptureFixture
+) -> None:
+    # QA: `heft run` with a port that does not exist logged only "running: 1 device(s)".
+    missing = tmp_path / "no-such-beam"
+    service = Service(station_config(port=str(missing), db=tmp_path / "heft.db"))
+    runtime = service.devices["beam"]
+    caplog.set_level(logging.WARNING, logger="heft.service")
+    task = asyncio.create_task(service.run())
+    try:
+        await asyncio.wait_for(service.ready.wait(), timeout=15)
+        await wait_until(lambda: runtime.failed_opens >= 3, timeout_s=30,
+                         what="three failed opens")
+        assert service.pipeline is not None
+        assert service.pipeline.alarms.is_active(AlarmKind.DEVICE_OFFLINE, "beam")
+    finally:
+        task.cancel()
+        with contextlib.suppress(asyncio.CancelledError):
+            await task
+    warnings = [r.getMessage() for r in caplog.records if r.name == "heft.service"]
+    assert len(warnings) == 1, warnings  # one line, not one per retry
+    assert "device beam" in warnings[0] and str(missing) in warnings[0]

@@ -413,6 +413,7 @@ async def test_heft_run_stops_cleanly_on_sigterm(tmp_path: Path) -> None:
         await asyncio.to_thread(pty.close)
     assert proc.returncode == 0
     assert b"Traceback" not in rest
+    assert b"stopping (SIGTERM)" in rest and b"stopped" in rest  # the log says why it ended
     with Store(tmp_path / "heft.db") as store:
         assert store.integrity_check() == "ok"
 

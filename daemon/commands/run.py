@@ -14,6 +14,8 @@ from typing import Any
 from daemon.config import ConfigError, StorageConfig, load_config
 from daemon.storage import StorageError
 
+log = logging.getLogger("heft.run")
+
 
 def register(subparsers: Any) -> None:
     parser = subparsers.add_parser(
@@ -45,11 +47,17 @@ async def _serve(service: Any) -> None:
     loop = asyncio.get_running_loop()
     task = asyncio.current_task()
     assert task is not None
+
+    def stop(sig: signal.Signals) -> None:
+        log.info("stopping (%s)", sig.name)
+        task.cancel()
+
     for sig in (signal.SIGINT, signal.SIGTERM):
         with contextlib.suppress(NotImplementedError, RuntimeError):
-            loop.add_signal_handler(sig, task.cancel)
+            loop.add_signal_handler(sig, stop, sig)
     with contextlib.suppress(asyncio.CancelledError):
         await service.run()
+    log.info("stopped")
 
 
 def _run(args: argparse.Namespace) -> int:

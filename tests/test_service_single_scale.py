@@ -1,0 +1,68 @@
+"""Single-scale stations: the balance point entered by command, and the shipped example run as
+its header says (through heft replay of simulated devices).
+
+Check values: the simulated club's weight and balance point (simulator inputs); Lorythmic points
+from domain.md's definition, (M14 - 161 oz*in) / 1.75 oz*in.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import random
+from datetime import UTC, datetime
+from pathlib import Path
+
+import pytest
+
+from daemon import command_api as api
+from daemon.config import StationConfig, load_config
+from daemon.events import Event, MeasurementCaptured
+from daemon.pipeline import BenchPipeline
+from daemon.service import Service
+from drivers.reading import Flag, Reading, ValueKind
+
+EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
+T0 = datetime(2026, 5, 4, 10, 0, tzinfo=UTC)
+
+
+def qc2_config(tmp_path: Path) -> StationConfig:
+    text = (EXAMPLES / "qc-2-single-scale.toml").read_text()
+    text = text.replace('path = "/tmp/heft-sim/qc-2.db"', f'path = "{tmp_path / "qc-2.db"}"')
+    path = tmp_path / "qc-2.toml"
+    path.write_text(text)
+    return load_config(path)
+
+
+def weighing(
+    device: str, weight_g: float, on_s: float, off_s: float, end_s: float
+) -> list[Reading]:
+    """A balance reporting 10 times a second: empty, the club from on_s to off_s, empty."""
+    rng = random.Random(5)
+    out = []
+    for i in range(int(end_s * 10)):
+        t = i / 10
+        value = (weight_g if on_s <= t < off_s else 0.0) + rng.gauss(0.0, 0.003)
+        out.append(Reading(device, 0, t, round(value, 2), ValueKind.GRAMS, "g", Flag.STABLE, b""))
+    return out
+
+
+async def test_set_balance_point_reply_carries_the_value_set(tmp_path: Path) -> None:
+    # QA: the reply said "balance_point_in": null once the value had paired with a weighing.
+    config = qc2_config(tmp_path)
+    service = Service(config)
+    pipeline = BenchPipeline(config, lambda: T0)
+    service.pipeline = pipeline  # the pure pipeline, fed below without ports
+    events: list[Event] = []
+    for r in weighing("balance", 405.0, 1.0, 5.0, 4.0):  # the club still on the balance
+        events.extend(pipeline.feed(r))
+    assert not any(isinstance(e, MeasurementCaptured) for e in events)  # waits for the BP
+    service._to_store = asyncio.Queue()
+    reply = await service.handle_command(
+        api.SetBalancePoint(command="set_balance_point", balance_point="29.2in")
+    )
+    assert reply.ok, reply.message
+    assert reply.data["balance_point_in"] == pytest.approx(29.2)
+    assert "29.20 in" in reply.message
+    (m,) = [service._to_store.get_nowait()]  # the weighing paired and went to storage
+    assert m.balance_point_in == pytest.approx(29.2)
+    assert m.total_weight_g == pytest.approx(405.0, abs=0.01)
