@@ -7,15 +7,20 @@ stopped and removed); one runs the real command line headless in a subprocess.
 from __future__ import annotations
 
 import itertools
+import os
+import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 from textual.widgets import Static
 
+from daemon.command_api import SelectJob
 from daemon.commands.demo import SCENARIO, STATION, demo_bench, demo_plan
 from daemon.measurement import Verdict
 from tui.app import HeftDashboard
+from tui.calibration import CalibrationScreen
 from tui.readout import VerdictBanner
 from tui.source import InProcessSource
 
@@ -96,3 +101,78 @@ def test_bad_demo_option_is_refused() -> None:
     done = heft("dash", "--broker", "mqtt://127.0.0.1:1883", "--station", "bench/1")
     assert done.returncode == 2
     assert "--station" in done.stderr and "bench/1" in done.stderr
+
+
+async def test_calibration_pauses_the_demo_operator_and_a_job_change_keeps_the_club() -> None:
+    with demo_bench(clubs=6) as runner:
+        assert runner.loop is not None and runner.timeline is not None
+        pipeline = runner.service.pipeline
+        assert pipeline is not None
+        source = InProcessSource(
+            runner.bus,
+            runner.handle_command,
+            service_loop=runner.loop,
+            jobs=list(runner.config.jobs),
+            subscription=runner.dashboard_subscription,
+            on_calibrating=runner.pause_placements,
+        )
+        app = HeftDashboard(source, station=STATION)
+        async with app.run_test(size=(120, 40)) as pilot:
+            for _ in range(400):  # the first club is laid about 2 s in
+                if runner.timeline.placements and len(app.state.channels) == 2:
+                    break
+                await pilot.pause(0.05)
+            assert len(runner.timeline.placements) == 1
+            assert pipeline.club == "4-iron"
+            # A job change resets the service's club; the demo operator picks it again.
+            reply = await source.send(SelectJob(command="select_job", job="LCW-2612 irons 4-PW"))
+            assert reply.ok, reply.message
+            assert pipeline.job == "LCW-2612 irons 4-PW" and pipeline.club == "4-iron"
+
+            await pilot.press("c")
+            for _ in range(100):
+                if isinstance(app.screen, CalibrationScreen):
+                    break
+                await pilot.pause(0.05)
+            screen = app.screen
+            assert isinstance(screen, CalibrationScreen)
+            note = str(screen.query_one("#cal-note", Static).render())
+            assert note == "demo: placements paused while you calibrate"
+            # The plan lays the next club about 5 s after the first; paused, none comes.
+            laid = len(runner.timeline.placements)
+            await pilot.pause(8.0)
+            assert len(runner.timeline.placements) == laid
+            paused_until_s = runner.bench.bench_time_s()
+            await pilot.press("escape")
+            for _ in range(300):
+                if len(runner.timeline.placements) > laid:
+                    break
+                await pilot.pause(0.05)
+            assert len(runner.timeline.placements) == laid + 1
+            assert runner.timeline.placements[-1].t_on_s > paused_until_s  # laid after resuming
+            await pilot.press("q")
+        assert app.ui_errors == 0
+
+
+def test_sighup_stops_the_demo_like_q(tmp_path: Path) -> None:
+    env = {**os.environ, "TMPDIR": str(tmp_path)}
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "120"],
+        env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )
+    try:
+        for _ in range(600):  # the bench is up once its database and pty links exist
+            if list(tmp_path.glob("heft-demo-*/beam")):
+                break
+            time.sleep(0.05)
+        assert list(tmp_path.glob("heft-demo-*/beam")), "the demo never started"
+        time.sleep(3.0)  # let the dashboard come up as well
+        proc.send_signal(signal.SIGHUP)
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    assert proc.returncode == 0, err
+    assert "removed:" in out
+    assert list(tmp_path.iterdir()) == []  # no folder, no dangling pty link

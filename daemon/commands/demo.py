@@ -20,6 +20,7 @@ import asyncio
 import contextlib
 import logging
 import random
+import signal
 import sys
 import tempfile
 import threading
@@ -28,9 +29,9 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from daemon.command_api import Command, Reply, SelectSpec
+from daemon.command_api import Command, Reply, SelectJob, SelectSpec
 from daemon.config import StationConfig, parse_config
 from daemon.events import EventBus
 from daemon.mqtt_settings import MqttSettings
@@ -44,6 +45,9 @@ from drivers.sim.pty_server import PtyDevice
 from drivers.sim.scenario import MAKER, larkspur_irons, scenario_timeline
 from tui.source import INBOX_SIZE
 
+if TYPE_CHECKING:
+    from textual.app import App
+
 log = logging.getLogger("heft.demo")
 
 SPEC = "larkspur-irons"
@@ -52,6 +56,9 @@ OUT_OF_SPEC_EVERY = 9  # in the sets after the first, every 9th club is built of
 BUMP_EVERY = 6  # ... and every 6th placement somebody knocks the bench
 SELECT_LEAD_S = 1.2  # the operator picks the next club of the set this long before laying it
 READY_TIMEOUT_S = 20.0
+RESUME_GAP_S = 2.0  # after a calibration, the next club is laid this long after the selection
+PAUSE_POLL_S = 0.2
+PAUSED_NOTE = "demo: placements paused while you calibrate"
 
 SCENARIO = larkspur_irons()
 STATION = SCENARIO.station
@@ -184,13 +191,29 @@ class ServiceThread:
     """The service on its own thread and event loop, plus the demo's operator.
 
     The operator picks each club of the set (select_spec with the club) shortly before it is
-    laid on the bench, as a person at the bench would; the scanner reads its id.
+    laid on the bench, as a person at the bench would, then lays it down (the club goes onto the
+    simulated bench's timeline and the scanner reads its id). While the dashboard's calibration
+    screen is open the operator lays nothing (:meth:`pause_placements`), so the beam stays empty
+    for the zero; after it closes, the set carries on where it stopped.
     """
 
-    def __init__(self, config: StationConfig, plan: list[DemoClub], bench: PtyDevice) -> None:
+    def __init__(
+        self,
+        config: StationConfig,
+        plan: list[DemoClub],
+        bench: PtyDevice,
+        timeline: BenchTimeline | None = None,
+        scanner: ScannerDevice | None = None,
+    ) -> None:
         self.config = config
         self.plan = plan
         self.bench = bench
+        self.timeline = timeline
+        self.scanner = scanner
+        self.paused = False
+        self._resumed = asyncio.Event()  # set while the operator may lay clubs (service loop)
+        self._resumed.set()
+        self._club: str | None = None  # the operator's current club selection
         self.bus = EventBus()
         self.service = Service(config, self.bus)
         # Taken before the service starts, so the dashboard sees its very first events.
@@ -236,17 +259,58 @@ class ServiceThread:
                 await run
 
     async def _operator(self) -> None:
+        delay_s = 0.0  # how far the plan has been pushed back by calibration pauses
+        resumed = self._resumed
         for item in self.plan:
-            wait_s = item.placement.t_on_s - SELECT_LEAD_S - self.bench.bench_time_s()
-            if wait_s > 0:
-                await asyncio.sleep(wait_s)
-            cmd = SelectSpec(command="select_spec", spec=SPEC, club=item.club)
-            reply = await self.service.handle_command(cmd)
-            if not reply.ok:
-                log.warning("demo operator: %s refused: %s", cmd.command, reply.message)
+            while True:
+                if not resumed.is_set():
+                    await resumed.wait()
+                    resume_at_s = self.bench.bench_time_s() + SELECT_LEAD_S + RESUME_GAP_S
+                    delay_s = max(delay_s, resume_at_s - item.placement.t_on_s)
+                wait_s = item.placement.t_on_s + delay_s - SELECT_LEAD_S - self.bench.bench_time_s()
+                if wait_s <= 0:
+                    break
+                await asyncio.sleep(min(wait_s, PAUSE_POLL_S))
+            self._club = item.club
+            await self._select(SelectSpec(command="select_spec", spec=SPEC, club=item.club))
+            self._lay(item.placement, delay_s)
+
+    def _lay(self, p: Placement, delay_s: float) -> None:
+        """Put the club on the simulated bench (later by ``delay_s``); the scanner reads its id."""
+        if self.timeline is None:  # a bench built with the whole plan on it already
+            return
+        bumps = tuple((t_s + delay_s, amplitude_g) for t_s, amplitude_g in p.bumps)
+        placed = self.timeline.place(p.club, p.t_on_s + delay_s, p.t_off_s + delay_s, bumps)
+        if self.scanner is not None and p.club.club_id:
+            lead_s = SCENARIO.scanner.scan_lead_s
+            self.scanner.scans.append((max(0.0, placed.t_on_s - lead_s), p.club.club_id))
+
+    async def _select(self, cmd: SelectSpec) -> None:
+        reply = await self.service.handle_command(cmd)
+        if not reply.ok:
+            log.warning("demo operator: %s refused: %s", cmd.command, reply.message)
+
+    def pause_placements(self, paused: bool) -> str:
+        """Stop (True) or resume (False) laying clubs; returns the note the dashboard shows.
+
+        Called from the dashboard's thread; the operator's event lives on the service's loop.
+        """
+        self.paused = paused
+        event = self._resumed
+        if self.loop is not None and not self.loop.is_closed():
+            with contextlib.suppress(RuntimeError):  # the loop may have just finished
+                self.loop.call_soon_threadsafe(event.clear if paused else event.set)
+        return PAUSED_NOTE if paused else ""
 
     async def handle_command(self, cmd: Command) -> Reply:
-        return await self.service.handle_command(cmd)
+        reply = await self.service.handle_command(cmd)
+        if reply.ok and isinstance(cmd, SelectJob):
+            # A new job resets the club selection: the operator picks the club on the bench
+            # again, so the next capture is judged against its own band.
+            spec = self.config.jobs[cmd.job].spec if cmd.job in self.config.jobs else None
+            if spec is not None and self._club is not None:
+                await self._select(SelectSpec(command="select_spec", spec=spec, club=self._club))
+        return reply
 
     def stop(self) -> None:
         loop, main = self.loop, self._main
@@ -272,9 +336,9 @@ def demo_bench(
     """
     with tempfile.TemporaryDirectory(prefix="heft-demo-") as workdir:
         plan = demo_plan(clubs, seed)
-        timeline = BenchTimeline(
-            SCENARIO.geometry, [c.placement for c in plan], SCENARIO.dynamics
-        )
+        # The operator lays each club of the plan as it goes (ServiceThread._lay), so that it
+        # can hold back while the operator at the dashboard calibrates.
+        timeline = BenchTimeline(SCENARIO.geometry, [], SCENARIO.dynamics)
         folder = Path(workdir)
         beam = BeamDevice(SCENARIO.beam, timeline, seed=seed)
         scanner_device = ScannerDevice(SCENARIO.scanner, timeline, seed=seed)
@@ -284,12 +348,42 @@ def demo_bench(
         ):
             seed_calibrations(folder / "heft.db", datetime.now(UTC).date())
             config = station_config(bench.path, scanner.path, folder / "heft.db", mqtt)
-            runner = ServiceThread(config, plan, bench)
+            runner = ServiceThread(config, plan, bench, timeline, scanner_device)
             runner.start()
             try:
                 yield runner
             finally:
                 runner.stop()
+
+
+class StopOnSignal:
+    """SIGTERM and SIGHUP (the terminal closed) stop the demo the way ``q`` does.
+
+    While the dashboard runs, the signal asks it to exit; before it runs (the bench is starting),
+    it raises SystemExit so that the ``with`` blocks stop the devices and remove the folder.
+    Once cleaning up, further signals are ignored so that the clean-up itself is not cut short.
+    """
+
+    SIGNALS = (signal.SIGTERM, signal.SIGHUP)
+
+    def __init__(self) -> None:
+        self.app: App[None] | None = None
+        self.stopping = False
+        self.received: int | None = None
+
+    def install(self) -> None:
+        for sig in self.SIGNALS:
+            signal.signal(sig, self)
+
+    def __call__(self, signum: int, frame: object) -> None:
+        self.received = signum
+        if self.stopping:
+            return
+        if self.app is not None and self.app.is_running:
+            self.app.exit()  # on the app's own thread: signal handlers run on the main thread
+            return
+        self.stopping = True
+        raise SystemExit(128 + signum)
 
 
 def register(subparsers: Any) -> None:
@@ -329,6 +423,8 @@ def run(args: argparse.Namespace) -> int:
     if args.headless_seconds is not None and not args.headless_seconds > 0:
         parser.error("--headless-seconds: expected a number of seconds > 0")
     started = time.monotonic()
+    stopper = StopOnSignal()
+    stopper.install()
     with demo_bench(mqtt=mqtt, seed=args.seed) as runner:
         assert runner.loop is not None
         source = InProcessSource(
@@ -338,13 +434,18 @@ def run(args: argparse.Namespace) -> int:
             service_loop=runner.loop,
             jobs=list(runner.config.jobs),
             subscription=runner.dashboard_subscription,
+            on_calibrating=runner.pause_placements,
         )
         app = HeftDashboard(source, station=STATION, bell=args.bell)
-        if args.headless_seconds is None:
-            app.run()
-        else:
-            app.call_later(lambda: app.set_timer(args.headless_seconds, app.exit))
-            app.run(headless=True, size=(120, 40))
+        stopper.app = app
+        try:
+            if args.headless_seconds is None:
+                app.run()
+            else:
+                app.call_later(lambda: app.set_timer(args.headless_seconds, app.exit))
+                app.run(headless=True, size=(120, 40))
+        finally:
+            stopper.stopping = True
         workdir = Path(runner.config.storage.path).parent
         if runner.error is not None:
             print(f"heft demo: the service stopped: {runner.error}", file=sys.stderr)
