@@ -25,7 +25,7 @@ import math
 import socket
 import time
 from collections import deque
-from collections.abc import Awaitable, Callable, Coroutine
+from collections.abc import Awaitable, Callable, Coroutine, Iterable
 from datetime import UTC, datetime
 from typing import Any, Generic, TypeVar
 
@@ -192,6 +192,7 @@ class MqttLink:
             except StorageError as err:  # the bus still brings every change from now on
                 log.error("cannot restore active alarms: %s", err)
             while True:
+                raise_if_cancel_requested()
                 retrying = AsyncRetrying(
                     retry=retry_if_exception_type(aiomqtt.MqttError),
                     wait=wait_exponential_jitter(
@@ -204,9 +205,7 @@ class MqttLink:
                 )
                 await retrying(self._connect_and_serve)
         finally:
-            consumer.cancel()
-            with contextlib.suppress(asyncio.CancelledError):
-                await consumer
+            await cancel_until_done([consumer])
             sub.close()
 
     # ------------------------------------------------------------------ connection
@@ -308,6 +307,7 @@ class MqttLink:
         if last:
             await client.publish(t.measurement_last, _json(last[0]), qos=1, retain=True)
         self._mark_all_dirty()
+        raise_if_cancel_requested()  # a cancel lost in a publish above must not start the session
         self._connected.set()
         try:
             await _first_error(
@@ -318,9 +318,8 @@ class MqttLink:
         except asyncio.CancelledError:
             # Orderly shutdown: say so (the will only covers an abrupt loss).
             with contextlib.suppress(Exception):
-                await asyncio.wait_for(
-                    client.publish(t.status, OFFLINE, qos=1, retain=True), timeout=2
-                )
+                async with asyncio.timeout(2):
+                    await client.publish(t.status, OFFLINE, qos=1, retain=True)
             raise
 
     # ------------------------------------------------------------------ measurements
@@ -416,8 +415,10 @@ class MqttLink:
                 await self._publish_checked(client, t.live, channel, _json(payload), 0, False)
             due = self._live.next_due()
             timeout = None if due is None else max(0.0, due - self._clock())
+            # asyncio.timeout, not wait_for: see raise_if_cancel_requested.
             with contextlib.suppress(TimeoutError):
-                await asyncio.wait_for(self._changed.wait(), timeout)
+                async with asyncio.timeout(timeout):
+                    await self._changed.wait()
 
     async def _publish_checked(
         self,
@@ -549,15 +550,43 @@ def _valid_publish_topic(topic: str) -> bool:
     return bool(topic) and not any(c in topic for c in "+#\x00") and len(topic.encode()) < 65536
 
 
+def raise_if_cancel_requested() -> None:
+    """Raise CancelledError if the current task was cancelled and the cancel got lost.
+
+    On Python 3.11 ``asyncio.wait_for`` returns its awaitable's result instead of raising when
+    the task is cancelled in the same loop iteration that the awaitable completes (CPython
+    gh-86296, fixed in 3.12). aiomqtt bounds every publish and subscribe with ``wait_for``, so a
+    cancel arriving just as a PUBACK does is swallowed; a loop that then waits without a
+    deadline never ends. The request is still counted by ``Task.cancelling()``: check it.
+    """
+    task = asyncio.current_task()
+    if task is not None and task.cancelling():
+        raise asyncio.CancelledError
+
+
+async def cancel_until_done(tasks: Iterable[asyncio.Task[Any]], retry_s: float = 1.0) -> None:
+    """Cancel tasks and wait until all have finished, cancelling again any that ran on.
+
+    Only for tasks without a graceful shutdown of their own: a repeated cancel cuts one short.
+    A task may swallow one cancel (see :func:`raise_if_cancel_requested`); it cannot swallow
+    them all, so this always ends.
+    """
+    pending = set(tasks)
+    while pending:
+        for task in pending:
+            task.cancel()
+        _, pending = await asyncio.wait(pending, timeout=retry_s)
+
+
 async def _first_error(*coros: Coroutine[Any, Any, None]) -> None:
     """Run coroutines together until the first one ends; cancel the rest; re-raise its error."""
     tasks = [asyncio.create_task(c) for c in coros]
     try:
         done, _ = await asyncio.wait(tasks, return_when=asyncio.FIRST_COMPLETED)
     finally:
-        for task in tasks:
-            task.cancel()
-        await asyncio.gather(*tasks, return_exceptions=True)
+        # Not gather(): one cancel can be lost in aiomqtt (raise_if_cancel_requested), and a
+        # lost cancel here left the link's shutdown waiting forever on a connected client.
+        await cancel_until_done(tasks)
     for task in done:
         if not task.cancelled() and (err := task.exception()) is not None:
             raise err

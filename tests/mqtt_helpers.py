@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import io
 import time
 import uuid
 from collections.abc import AsyncIterator, Callable
@@ -12,7 +13,7 @@ from typing import Any
 
 import aiomqtt
 
-from daemon.mqtt_link import MqttLink
+from daemon.mqtt_link import MqttLink, cancel_until_done
 from daemon.mqtt_settings import MqttSettings
 from tests.mqtt_broker import Broker
 
@@ -42,6 +43,34 @@ async def wait_until(
         if time.monotonic() > deadline:
             raise AssertionError(f"timed out after {timeout_s} s waiting for {what}")
         await asyncio.sleep(0.02)
+
+
+def task_stacks() -> str:
+    """Every task's stack on the running loop (where a hung shutdown waits)."""
+    out = io.StringIO()
+    for task in asyncio.all_tasks():
+        out.write(f"--- {task.get_name()} (cancelling={task.cancelling()})\n")
+        task.print_stack(file=out)
+    return out.getvalue()
+
+
+async def stop_task(
+    task: asyncio.Task[Any], what: str, timeout_s: float = 30.0, *, reraise: bool = True
+) -> None:
+    """Cancel ``task`` once and wait for it; fail naming ``what`` if it does not stop in time.
+
+    One cancel, as a real shutdown sends: a task that loses it is a bug the test must show,
+    with every task's stack. It is then cancelled until it ends so the next test starts clean.
+    Re-raises the task's own error, if it ended with one (unless ``reraise`` is False).
+    """
+    task.cancel()
+    done, _ = await asyncio.wait({task}, timeout=timeout_s)
+    if not done:
+        stacks = task_stacks()
+        await cancel_until_done([task])
+        raise AssertionError(f"{what} did not stop within {timeout_s} s of a cancel:\n{stacks}")
+    if reraise and not task.cancelled():
+        task.result()
 
 
 @dataclass
@@ -86,9 +115,8 @@ async def collecting(
         try:
             yield client, collector
         finally:
-            task.cancel()
-            with contextlib.suppress(asyncio.CancelledError, aiomqtt.MqttError):
-                await task
+            with contextlib.suppress(aiomqtt.MqttError):
+                await stop_task(task, "the test's collecting client")
 
 
 @contextlib.asynccontextmanager
@@ -99,6 +127,4 @@ async def running(link: MqttLink) -> AsyncIterator[asyncio.Task[None]]:
         await asyncio.wait_for(link.wait_connected(), timeout=15)
         yield task
     finally:
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError):
-            await task
+        await stop_task(task, "MqttLink.run")

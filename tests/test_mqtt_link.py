@@ -29,7 +29,14 @@ from daemon.mqtt_topics import AlarmPayload, AlarmsPayload, LiveReadingPayload
 from daemon.storage import Store
 from drivers.reading import Flag
 from tests.mqtt_broker import Broker
-from tests.mqtt_helpers import Collector, collecting, running, settings_for, wait_until
+from tests.mqtt_helpers import (
+    Collector,
+    collecting,
+    running,
+    settings_for,
+    stop_task,
+    wait_until,
+)
 from tests.sample_records import make_alarm, make_measurement
 
 
@@ -354,8 +361,7 @@ async def test_a_short_session_counts_as_a_failed_attempt(
         else:
             assert await asyncio.wait_for(session, timeout=15) is None
     finally:
-        session.cancel()
-        await asyncio.gather(session, return_exceptions=True)
+        await stop_task(session, "MqttLink._connect_and_serve", reraise=False)
 
 
 async def test_an_unexpected_error_in_a_session_is_logged_and_the_link_recovers(
@@ -383,6 +389,5 @@ async def test_an_unexpected_error_in_a_session_is_logged_and_the_link_recovers(
             bus.publish(MeasurementCaptured(m))
             await wait_until(lambda: bool(got.messages), what="measurement after the fault")
         finally:
-            task.cancel()
-            await asyncio.gather(task, return_exceptions=True)
+            await stop_task(task, "MqttLink.run", reraise=False)
     assert any("injected fault" in (r.exc_text or "") or r.exc_info for r in caplog.records)

@@ -14,10 +14,10 @@ from paho.mqtt.properties import Properties
 
 from daemon.events import EventBus, MeasurementCaptured
 from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink
+from daemon.mqtt_link import MqttLink, cancel_until_done
 from daemon.storage import Store
 from tests.mqtt_broker import Broker
-from tests.mqtt_helpers import settings_for, wait_until
+from tests.mqtt_helpers import settings_for, stop_task, wait_until
 from tests.sample_records import make_measurement
 
 
@@ -61,9 +61,9 @@ async def historian(
     try:
         yield received
     finally:
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError):
-            await task
+        # The test's own consumer, not the code under test: a cancel lost in its subscribe
+        # (raise_if_cancel_requested) would leave it in ``client.messages``; repeat it.
+        await cancel_until_done([task])
 
 
 async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Path) -> None:
@@ -125,9 +125,7 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
                     what="all 20 measurements after the outage",
                 )
         finally:
-            task.cancel()
-            with contextlib.suppress(asyncio.CancelledError):
-                await task
+            await stop_task(task, "MqttLink.run")
 
     by_id: dict[str, set[bytes]] = {}
     for p in received:

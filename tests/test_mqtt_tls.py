@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import asyncio
-import contextlib
 import logging
 import shutil
 import subprocess
@@ -18,7 +17,7 @@ from daemon.mqtt_link import MqttLink
 from daemon.mqtt_settings import MqttSettings, TlsSettings
 from daemon.storage import Store
 from tests.mqtt_broker import Broker, free_port
-from tests.mqtt_helpers import collecting, running, unique_root, wait_until
+from tests.mqtt_helpers import collecting, running, stop_task, unique_root, wait_until
 from tests.sample_records import make_measurement
 
 pytestmark = pytest.mark.skipif(
@@ -161,6 +160,4 @@ async def test_wrong_password_is_retried_not_fatal(
             assert not task.done()  # still trying: a refused login never ends the service
             assert not link.connected
         finally:
-            task.cancel()
-            with contextlib.suppress(asyncio.CancelledError):
-                await task
+            await stop_task(task, "MqttLink.run")

@@ -21,7 +21,7 @@ from daemon.mqtt_link import MqttLink
 from daemon.mqtt_settings import MqttSettings
 from daemon.storage import Store
 from tests.mqtt_broker import Broker
-from tests.mqtt_helpers import settings_for, wait_until
+from tests.mqtt_helpers import settings_for, stop_task, wait_until
 from tui.app import HeftDashboard
 from tui.mqtt_source import BrokerUrlError, MqttSource, flags_from_names, settings_from_url
 from tui.pickers import StationPicker
@@ -57,10 +57,10 @@ async def running(station: Station) -> AsyncIterator[Station]:
         await asyncio.wait_for(station.link.wait_connected(), 15)
         yield station
     finally:
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError):
-            await task
-        station.store.close()
+        try:
+            await stop_task(task, f"MqttLink.run of {station.link.station}")
+        finally:
+            station.store.close()
 
 
 def url(broker: Broker, settings: MqttSettings) -> str:
