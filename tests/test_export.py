@@ -6,6 +6,8 @@ import argparse
 import csv
 import io
 import json
+import subprocess
+import sys
 import time
 from collections.abc import Iterator
 from datetime import timedelta
@@ -198,3 +200,34 @@ def test_missing_database_exits_2_and_creates_nothing(
     assert exit_info.value.code == 2
     assert "--db" in capsys.readouterr().err
     assert not missing.exists()
+
+
+def test_an_unknown_output_suffix_is_refused_unless_a_format_is_given(
+    db: tuple[Path, list[Measurement]], tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # QA: -o out.xlsx silently wrote CSV into a file a spreadsheet then fails to open.
+    path, ms = db
+    out = tmp_path / "week-48.xlsx"
+    with pytest.raises(SystemExit) as exit_info:
+        heft_export("--db", str(path), "-o", str(out))
+    assert exit_info.value.code == 2
+    err = capsys.readouterr().err
+    assert "--output" in err and "week-48.xlsx" in err and "--format" in err
+    assert not out.exists()
+    # Asked for by name, the format is written whatever the file is called.
+    assert heft_export("--db", str(path), "-o", str(out), "--format", "jsonl") == 0
+    assert _jsonl(out.read_text()) == ms
+
+
+def test_a_reader_closing_the_pipe_is_a_quiet_end(db: tuple[Path, list[Measurement]]) -> None:
+    # QA: `heft export ... | head` printed "--output: cannot write None: Broken pipe".
+    path, _ = db
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "daemon", "export", "--db", str(path)],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+    )
+    assert proc.stdout is not None and proc.stderr is not None
+    proc.stdout.close()  # the reader is gone before the first row is written
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=60) == 0
+    assert err == "", err

@@ -197,3 +197,15 @@ def test_a_small_load_left_on_the_empty_beam_raises_the_needs_zero_alarm() -> No
     ]
     assert changes and changes[0] == (AlarmKind.NEEDS_ZERO, True)
     assert not measurements(events)
+
+
+def test_heft_replay_of_a_missing_file_is_one_clear_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # QA: it printed a raw "[Errno 2] ...".
+    config = tmp_path / "station.toml"
+    config.write_text(station_toml(port="/dev/null", db=tmp_path / "none.db"))
+    missing = tmp_path / "no-such-run.jsonl"
+    assert main(["replay", "--config", str(config), str(missing)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err == f"heft replay: {missing}: no such recording file"

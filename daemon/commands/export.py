@@ -8,6 +8,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from daemon.commands._pipe import reader_went_away
 from daemon.export import FORMATS
 from daemon.measurement import Verdict
 
@@ -31,7 +32,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--format",
         choices=sorted(FORMATS),
-        help="output format (default: from the --output suffix, else csv)",
+        help="output format (default: from the --output suffix .csv or .jsonl, else csv)",
     )
     parser.add_argument("-o", "--output", type=Path, metavar="FILE", help="default: stdout")
     parser.add_argument("--since", metavar="TIME", help=f"from this time ({_TIME_FORM})")
@@ -64,9 +65,15 @@ def _export(args: argparse.Namespace) -> int:
         else:
             until = value
     fmt = args.format
-    if fmt is None:
-        suffix = args.output.suffix.lstrip(".").lower() if args.output else ""
-        fmt = suffix if suffix in FORMATS else "csv"
+    if fmt is None and args.output is not None:
+        suffix = args.output.suffix.lstrip(".").lower()
+        if suffix not in FORMATS:  # never write CSV into a file named .xlsx
+            parser.error(
+                f"argument -o/--output: cannot tell the format of {args.output.name!r}; "
+                f"name it .csv or .jsonl, or give --format ({', '.join(sorted(FORMATS))})"
+            )
+        fmt = suffix
+    fmt = fmt or "csv"
 
     db_path: Path = args.db
     if args.config is not None:
@@ -88,7 +95,12 @@ def _export(args: argparse.Namespace) -> int:
                 since=since, until=until, job=args.job, verdict=args.verdict, station=args.station
             )
             if args.output is None:
-                n = FORMATS[fmt](rows, sys.stdout)
+                try:
+                    n = FORMATS[fmt](rows, sys.stdout)
+                    sys.stdout.flush()
+                except BrokenPipeError:
+                    reader_went_away()
+                    return 0
             else:
                 with args.output.open("w", encoding="utf-8", newline="") as out:
                     n = FORMATS[fmt](rows, out)

@@ -8,6 +8,7 @@ from pathlib import Path
 from typing import Any
 
 from daemon.calibration import active_record
+from daemon.commands._pipe import reader_went_away
 from daemon.config import ConfigError, load_config
 from daemon.records import CalibrationRecord
 from daemon.replay import ReplayError, replay
@@ -54,6 +55,10 @@ def _run(args: argparse.Namespace) -> int:
     except ConfigError as err:
         print(f"heft replay: {err}", file=sys.stderr)
         return 2
+    for path in args.recordings:
+        if not path.is_file():
+            print(f"heft replay: {path}: no such recording file", file=sys.stderr)
+            return 2
     try:
         calibrations = _calibrations(args.calibrations or config.storage.path)
     except StorageError as err:
@@ -63,7 +68,14 @@ def _run(args: argparse.Namespace) -> int:
         for m in replay(config, args.recordings, calibrations=calibrations):
             sys.stdout.write(m.model_dump_json() + "\n")
             sys.stdout.flush()
-    except (RecordingError, ReplayError, DriverError, OSError) as err:
+    except BrokenPipeError:  # the reader (| head) has what it wanted
+        reader_went_away()
+        return 0
+    except OSError as err:
+        where = f"{err.filename}: " if err.filename else ""
+        print(f"heft replay: {where}cannot read ({err.strerror})", file=sys.stderr)
+        return 2
+    except (RecordingError, ReplayError, DriverError) as err:
         print(f"heft replay: {err}", file=sys.stderr)
         return 2
     return 0
