@@ -32,7 +32,7 @@ from daemon.storage import Store
 from drivers.sim.physics import Club, Placement
 from drivers.sim.pty_server import PtyDevice
 from tests.mqtt_broker import Broker
-from tests.mqtt_helpers import collecting, wait_until
+from tests.mqtt_helpers import collecting, stop_task, wait_until
 from tests.service_bench import (
     LARKSPUR_CLUBS,
     beam_definition,
@@ -79,9 +79,7 @@ async def bench(
         await asyncio.wait_for(service.ready.wait(), timeout=15)
         yield service, pty, events
     finally:
-        task.cancel()
-        with contextlib.suppress(asyncio.CancelledError):
-            await task
+        await stop_task(task, "Service.run")  # bounded: a lost cancel fails with the stacks
         collector.cancel()
         with contextlib.suppress(asyncio.CancelledError):
             await collector
