@@ -15,14 +15,17 @@ Layout (every table is described in docs/service.md and shown by ``heft config e
 
 Lengths and masses accept unit suffixes (``"36in"``, ``"914mm"``, ``"390g"``, ``"13.7oz"``);
 bare numbers are inches and grams. A bad file gives one :class:`ConfigError` whose message names
-the field path (``geometry.position_b_in``) and the expected form.
+the field path (``geometry.position_b_in``) and the expected form, one line per problem.
 """
 
 from __future__ import annotations
 
+import difflib
+import sys
 import tomllib
+import types
 from pathlib import Path
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, Literal, Union, get_args, get_origin
 
 from pydantic import (
     BaseModel,
@@ -44,7 +47,10 @@ CHANNEL_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*/[0-9]+$"
 
 
 class ConfigError(ValueError):
-    """A station config that cannot be used; the message names the field and the expected form."""
+    """A station config that cannot be used; the message names the field and the expected form.
+
+    One line per problem (``<file>: <field path>: <what was expected>``).
+    """
 
 
 def _quantity(kind: str) -> BeforeValidator:
@@ -305,31 +311,38 @@ class StationConfig(_Section):
 
     @model_validator(mode="after")
     def _references(self) -> StationConfig:
-        names = [d.name for d in self.devices]
-        seen: set[str] = set()
-        for name in names:
-            if name in seen:
-                raise _FieldProblem("devices", f"device name {name!r} is used twice")
-            seen.add(name)
-        for field, channel in _geometry_channel_fields(self.geometry):
-            device = channel.split("/")[0]
-            if device not in seen:
-                raise _FieldProblem(
-                    f"geometry.{field}", f"{channel!r} names no device; devices: {sorted(seen)}"
-                )
+        problems: list[tuple[str, str]] = []
+        drivers: dict[str, str] = {}
+        for d in self.devices:
+            if d.name in drivers:
+                problems.append(("devices", f"device name {d.name!r} is used twice"))
+            drivers[d.name] = d.driver
+        read = dict(_geometry_channel_fields(self.geometry))
+        for field, channel in read.items():
+            why = _channel_problem(channel, drivers)
+            if why is not None:
+                problems.append((f"geometry.{field}", why))
         for channel in self.channels:
-            if channel.split("/")[0] not in seen:
-                raise _FieldProblem(f"channels.{channel}", "names no configured device")
+            why = _channel_problem(channel, drivers)
+            if why is None and channel not in read.values():
+                why = (
+                    f"the geometry reads no channel {channel!r} (it reads "
+                    f"{', '.join(sorted(set(read.values())))})"
+                )
+            if why is not None:
+                problems.append((f"channels.{channel}", why))
         for job_name, job in self.jobs.items():
             if job.spec not in self.specs:
-                raise _FieldProblem(
+                problems.append((
                     f"jobs.{job_name}.spec",
                     f"{job.spec!r} is not a spec; specs: {sorted(self.specs)}",
-                )
+                ))
         if self.job is not None and self.job not in self.jobs:
-            raise _FieldProblem("job", f"{self.job!r} is not a job; jobs: {sorted(self.jobs)}")
+            problems.append(("job", f"{self.job!r} is not a job; jobs: {sorted(self.jobs)}"))
         if self.spec is not None and self.spec not in self.specs:
-            raise _FieldProblem("spec", f"{self.spec!r} is not a spec; specs: {sorted(self.specs)}")
+            problems.append(("spec", f"{self.spec!r} is not a spec; specs: {sorted(self.specs)}"))
+        if problems:
+            raise _FieldProblem(problems)
         return self
 
     def device(self, name: str) -> DeviceConfig:
@@ -355,6 +368,32 @@ class StationConfig(_Section):
         return self.model_copy(update={"storage": StorageConfig(path=path)})
 
 
+# How many weight channels a driver reads, where it is fixed: the balances and the HID scale
+# read one (docs/protocols.md), a scanner reads club ids only. A beam says how many in its
+# HELLO (``ch=``), so its channel indexes are checked when it connects, not here.
+DRIVER_CHANNELS: dict[str, int] = {
+    "poll_balance": 1,
+    "stream_balance": 1,
+    "regex_line": 1,
+    "hid_pos": 1,
+    "scanner": 0,
+}
+
+
+def _channel_problem(channel: str, drivers: dict[str, str]) -> str | None:
+    """Why ``channel`` ('<device>/<n>') is not a weight channel of a configured device."""
+    device, _, index = channel.partition("/")
+    driver = drivers.get(device)
+    if driver is None:
+        return f"{channel!r} names no device; devices: {sorted(drivers)}"
+    count = DRIVER_CHANNELS.get(driver)
+    if count == 0:
+        return f"{channel!r} is a {driver}, which reads club ids, not weights"
+    if count is not None and int(index) >= count:
+        return f"{channel!r}: a {driver} device reads only {device}/0"
+    return None
+
+
 def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, str]]:
     return [
         (name, str(getattr(geometry, name)))
@@ -364,12 +403,11 @@ def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, str]]:
 
 
 class _FieldProblem(ValueError):
-    """A cross-field problem that knows its own path (raised inside a model validator)."""
+    """Cross-field problems that know their own paths (raised inside a model validator)."""
 
-    def __init__(self, path: str, message: str) -> None:
-        super().__init__(f"{path}: {message}")
-        self.path = path
-        self.message = message
+    def __init__(self, problems: list[tuple[str, str]]) -> None:
+        super().__init__("; ".join(f"{path}: {message}" for path, message in problems))
+        self.problems = problems
 
 
 def _format_loc(loc: tuple[int | str, ...]) -> str:
@@ -397,7 +435,7 @@ def _expected(err: Any) -> str:
     if kind == "missing":
         return "is required"
     if kind == "extra_forbidden":
-        return "is not a known setting (check the spelling)"
+        return _unknown_field(tuple(err["loc"]))
     if kind == "union_tag_invalid" or kind == "union_tag_not_found":
         return f"'type' must be one of {', '.join(GEOMETRY_TYPES)}"
     got = err.get("input")
@@ -406,18 +444,80 @@ def _expected(err: Any) -> str:
     return msg
 
 
+def _unknown_field(loc: tuple[int | str, ...]) -> str:
+    """'unknown field', with the nearest known name (difflib) or the known names."""
+    known = _fields_at(loc[:-1])
+    typed = str(loc[-1])
+    near = difflib.get_close_matches(typed, known, n=1, cutoff=0.6)
+    if near:
+        return f"unknown field; did you mean {near[0]!r}?"
+    if known:
+        return f"unknown field; expected one of {', '.join(known)}"
+    return "unknown field"
+
+
+def _fields_at(loc: tuple[int | str, ...]) -> list[str]:
+    """Field names of the config table at ``loc`` (empty when it is not a model)."""
+    tp: Any = StationConfig
+    for item in loc:
+        if isinstance(item, str) and item.startswith("function-"):
+            continue
+        tp, consumed = _unwrap(tp, item)
+        if consumed:  # the item was a tagged union's tag (geometry.two_support...)
+            continue
+        if isinstance(tp, type) and issubclass(tp, BaseModel):
+            field = tp.model_fields.get(str(item))
+            if field is None:
+                return []
+            tp = field.annotation
+        elif get_origin(tp) is list:
+            tp = get_args(tp)[0]
+        elif get_origin(tp) is dict:
+            tp = get_args(tp)[1]
+        else:
+            return []
+    tp, _ = _unwrap(tp, None)
+    if isinstance(tp, type) and issubclass(tp, BaseModel):
+        return list(tp.model_fields)
+    return []
+
+
+def _unwrap(tp: Any, tag: int | str | None) -> tuple[Any, bool]:
+    """Strip Annotated and Optional; pick a tagged union's member by its ``type`` tag.
+
+    Returns the type and whether ``tag`` picked a union member (and so is used up).
+    """
+    while get_origin(tp) is Annotated:
+        tp = get_args(tp)[0]
+    members = [a for a in get_args(tp) if a is not type(None)] if _is_union(tp) else []
+    if len(members) == 1:
+        return _unwrap(members[0], tag)
+    for m in members:
+        tagged = isinstance(m, type) and issubclass(m, BaseModel) and "type" in m.model_fields
+        if tagged and tag in get_args(m.model_fields["type"].annotation):
+            return m, True
+    return tp, False
+
+
+def _is_union(tp: Any) -> bool:
+    return get_origin(tp) in (Union, types.UnionType)
+
+
+def problem_lines(err: ValidationError) -> list[str]:
+    """Every problem, one per line: the field path and the expected form; unknown keys first."""
+    lines: list[str] = []
+    for e in sorted(err.errors(), key=lambda e: e["type"] != "extra_forbidden"):
+        ctx_err = e.get("ctx", {}).get("error")
+        if isinstance(ctx_err, _FieldProblem):
+            lines.extend(f"{path}: {message}" for path, message in ctx_err.problems)
+        else:
+            lines.append(f"{_format_loc(tuple(e['loc']))}: {_expected(e)}")
+    return lines
+
+
 def format_validation_error(err: ValidationError) -> str:
-    """One line: the first problem's field path and the expected form (+ how many more)."""
-    errors = err.errors()
-    first = errors[0]
-    ctx_err = first.get("ctx", {}).get("error")
-    if isinstance(ctx_err, _FieldProblem):
-        text = f"{ctx_err.path}: {ctx_err.message}"
-    else:
-        text = f"{_format_loc(tuple(first['loc']))}: {_expected(first)}"
-    if len(errors) > 1:
-        text += f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})"
-    return text
+    """Every problem on its own line (see ``problem_lines``)."""
+    return "\n".join(problem_lines(err))
 
 
 def check_drivers(config: StationConfig) -> None:
@@ -456,16 +556,24 @@ def parse_config(data: dict[str, Any], base: Path | None = None) -> StationConfi
 
 
 def load_config(path: Path) -> StationConfig:
-    """Read and validate a station config file."""
+    """Read and validate a station config file; ``-`` reads standard input."""
+    if str(path) == "-":
+        return load_config_text(sys.stdin.read(), "<stdin>", Path.cwd())
     try:
         text = path.read_text(encoding="utf-8")
     except OSError as err:
         raise ConfigError(f"{path}: cannot read ({err.strerror})") from None
+    return load_config_text(text, str(path), path.parent.resolve())
+
+
+def load_config_text(text: str, source: str, base: Path) -> StationConfig:
+    """Validate config text; ``source`` starts every problem line, ``base`` anchors paths."""
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
-        raise ConfigError(f"{path}: not valid TOML: {err}") from None
+        raise ConfigError(f"{source}: not valid TOML: {err}") from None
     try:
-        return parse_config(data, base=path.parent.resolve())
+        return parse_config(data, base=base)
     except ConfigError as err:
-        raise ConfigError(f"{path}: {err}") from None
+        lines = [f"{source}: {line}" for line in str(err).splitlines()]
+        raise ConfigError("\n".join(lines)) from None

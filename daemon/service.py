@@ -62,7 +62,7 @@ from daemon.records import CalibrationRecord, ReferenceMass
 from daemon.sd_notify import notify, watchdog_interval_s
 from daemon.storage import StorageError, Store
 from drivers.base import DriverError, TransportError, UnsupportedCommand
-from drivers.reading import Reading
+from drivers.reading import DeviceInfo, Reading
 from drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
 from drivers.registry import create_driver
 from drivers.session import DeviceSession
@@ -342,10 +342,31 @@ class Service:
                     runtime.readings += 1
                     runtime.last_value = output.value
                     runtime.last_t_mono_s = output.t_mono_s
+                elif isinstance(output, DeviceInfo):
+                    self._check_channel_count(output)
                 self._dispatch(self.pipeline.feed(output))
         finally:
             runtime.session = None
         raise TransportError(f"device {runtime.config.name!r}: the port closed")
+
+    def _check_channel_count(self, info: DeviceInfo) -> None:
+        """A beam says how many channels it has (HELLO): name config channels beyond them.
+
+        The config check cannot know a beam's channel count; a geometry channel it does not
+        have would otherwise never read anything, silently.
+        """
+        wanted = sorted({*self.config.geometry.channels, *self.config.channels})
+        missing = [
+            ch for ch in wanted
+            if ch.split("/")[0] == info.device and int(ch.split("/")[1]) >= info.channels
+        ]
+        if missing:
+            log.error(
+                "device %s has %d channel(s) (%s/0 to %s/%d) but the config uses %s: check "
+                "[geometry] and [channels]",
+                info.device, info.channels, info.device, info.device, info.channels - 1,
+                ", ".join(missing),
+            )
 
     def _device_up(self, runtime: DeviceRuntime, session: DeviceSession) -> None:
         runtime.connected = True

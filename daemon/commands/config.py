@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from daemon.commands._cli_io import print_error
 from daemon.config import GEOMETRY_TYPES, ConfigError, load_config
 from daemon.config_example import example_toml
 
@@ -18,8 +19,8 @@ def register(subparsers: Any) -> None:
         description="Validate a station config without starting anything, or print an example.",
     )
     sub = parser.add_subparsers(dest="config_command", metavar="ACTION", required=True)
-    check = sub.add_parser("check", help="validate FILE; exit 2 naming the first bad field")
-    check.add_argument("file", type=Path, metavar="FILE")
+    check = sub.add_parser("check", help="validate FILE ('-': stdin); exit 2 naming each problem")
+    check.add_argument("file", type=Path, metavar="FILE", help="the config, or - for stdin")
     check.set_defaults(func=_check)
     example = sub.add_parser("example", help="print a commented example config")
     example.add_argument(
@@ -35,7 +36,7 @@ def _check(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.file)
     except ConfigError as err:
-        print(f"heft config: {err}", file=sys.stderr)
+        print_error("config", err)
         return 2
     devices = ", ".join(f"{d.name} ({d.driver})" for d in config.devices)
     print(

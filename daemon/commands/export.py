@@ -8,7 +8,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from daemon.commands._pipe import reader_went_away
+from daemon.commands._cli_io import print_error, reader_went_away
 from daemon.export import FORMATS
 from daemon.measurement import Verdict
 
@@ -82,7 +82,7 @@ def _export(args: argparse.Namespace) -> int:
         try:
             db_path = load_config(args.config).storage.path
         except ConfigError as err:
-            print(f"heft export: {err}", file=sys.stderr)
+            print_error("export", err)
             return 2
     if not db_path.is_file():
         parser.error(f"argument --db: no database file at {db_path}")

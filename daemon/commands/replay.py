@@ -8,7 +8,7 @@ from pathlib import Path
 from typing import Any
 
 from daemon.calibration import active_record
-from daemon.commands._pipe import reader_went_away
+from daemon.commands._cli_io import print_error, reader_went_away
 from daemon.config import ConfigError, load_config
 from daemon.records import CalibrationRecord
 from daemon.replay import ReplayError, replay
@@ -53,7 +53,7 @@ def _run(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.config)
     except ConfigError as err:
-        print(f"heft replay: {err}", file=sys.stderr)
+        print_error("replay", err)
         return 2
     for path in args.recordings:
         if not path.is_file():

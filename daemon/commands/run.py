@@ -11,6 +11,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from daemon.commands._cli_io import print_error
 from daemon.config import ConfigError, StorageConfig, load_config
 from daemon.storage import StorageError
 
@@ -69,7 +70,7 @@ def _run(args: argparse.Namespace) -> int:
     try:
         config = load_config(args.config)
     except ConfigError as err:
-        print(f"heft run: {err}", file=sys.stderr)
+        print_error("run", err)
         return 2
     if args.db is not None:
         config = config.model_copy(update={"storage": StorageConfig(path=args.db.resolve())})

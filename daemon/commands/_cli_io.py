@@ -1,4 +1,4 @@
-"""Standard output closed by its reader (``heft export | head``) is a normal end, not an error."""
+"""Small shared pieces of the service commands: errors on stderr, a reader closing stdout."""
 
 from __future__ import annotations
 
@@ -14,3 +14,10 @@ def reader_went_away() -> None:
     devnull = os.open(os.devnull, os.O_WRONLY)
     os.dup2(devnull, sys.stdout.fileno())
     os.close(devnull)
+
+
+def print_error(prog: str, err: Exception) -> None:
+    """An error on stderr, every line of it led by ``heft <command>:`` (config problems are
+    one per line)."""
+    for line in str(err).splitlines() or [""]:
+        print(f"heft {prog}: {line}", file=sys.stderr)
