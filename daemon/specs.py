@@ -26,26 +26,51 @@ class SpecJudgement:
         return [c for c in self.checks if c.verdict is Verdict.FAIL]
 
 
+# How each check is named in messages (the check ids stay as they are in stored records).
+CHECK_NAMES: dict[str, str] = {
+    "swingweight": "swing weight",
+    "total_weight": "total weight",
+    "balance_point": "balance point",
+}
+
+
 def judge_band(
-    check: str, value: float, low: float, high: float, near_fraction: float, shown: str
+    check: str,
+    value: float,
+    low: float,
+    high: float,
+    near_fraction: float,
+    shown: str,
+    *,
+    band: str,
+    unit: str,
 ) -> CheckResult:
-    """One band check; ``shown`` is the value as people read it (``'D2.6'``, ``'402.1 g'``)."""
+    """One band check.
+
+    The message puts the essential words first, short enough for a one-line alarm banner:
+    ``'swing weight D3.7: 1.2 points over the limit (D2 ± 0.5)'``.
+
+    Args:
+        shown: The value as people read it (``'D2.6'``, ``'402.1 g'``).
+        band: The band as people read it (``'D2 ± 0.5'``, ``'400 to 430 g'``).
+        unit: Unit of the excess over a limit (``'points'``, ``'g'``, ``'in'``).
+    """
     margin = near_fraction * (high - low) / 2.0
     if value < low:
-        verdict, where = Verdict.FAIL, f"below the low limit by {low - value:.3g}"
+        verdict, where = Verdict.FAIL, f"{low - value:.3g} {unit} under the limit"
     elif value > high:
-        verdict, where = Verdict.FAIL, f"above the high limit by {value - high:.3g}"
+        verdict, where = Verdict.FAIL, f"{value - high:.3g} {unit} over the limit"
     elif value < low + margin or value > high - margin:
-        verdict, where = Verdict.NEAR_LIMIT, "inside, near a limit"
+        verdict, where = Verdict.NEAR_LIMIT, "near the limit"
     else:
-        verdict, where = Verdict.PASS, "inside"
+        verdict, where = Verdict.PASS, "in spec"
     return CheckResult(
         check=check,
         verdict=verdict,
         value=value,
         low=low,
         high=high,
-        message=f"{check} {shown}: {where}",
+        message=f"{CHECK_NAMES.get(check, check)} {shown}: {where} ({band})",
     )
 
 
@@ -94,7 +119,9 @@ def judge(
                 centre - tol,
                 centre + tol,
                 near,
-                f"{describe_points(swingweight_points)} (target {target.swingweight} +/- {tol:g})",
+                describe_points(swingweight_points),
+                band=f"{target.swingweight} ± {tol:g}",
+                unit="points",
             )
         )
     mass_range: MassRange | None = target.total_weight
@@ -107,6 +134,8 @@ def judge(
                 mass_range.max_g,
                 near,
                 f"{total_weight_g:.1f} g",
+                band=f"{mass_range.min_g:g} to {mass_range.max_g:g} g",
+                unit="g",
             )
         )
     bp_range: LengthRange | None = target.balance_point
@@ -119,6 +148,8 @@ def judge(
                 bp_range.max_in,
                 near,
                 f"{balance_point_in:.2f} in",
+                band=f"{bp_range.min_in:g} to {bp_range.max_in:g} in",
+                unit="in",
             )
         )
     if not checks:

@@ -1,12 +1,12 @@
 """Is a window of readings still enough to zero, tare or calibrate on? (pure)
 
-Weighing practice takes a zero or a result only at stable equilibrium: within +/-1 d for at least
+Weighing practice takes a zero or a result only at stable equilibrium: within ±1 d for at least
 0.4 s (OIML R 76-1 4.4.2). The capture engine applies that to clubs; zero, tare, span and verify
 average a fixed window instead, so they check the window afterwards:
 
 * When the window is in grams (a calibrated channel, a gram scale), its standard deviation must
   be within ``max(STILL_NOISE_MULTIPLE x noise, 1 d)``: a still load scatters only by the
-  channel's noise, and a reading toggling between neighbouring steps is still within +/-1 d.
+  channel's noise, and a reading toggling between neighbouring steps is still within ±1 d.
 * When grams are not known yet (the first zero or span of a load-cell channel, in raw counts),
   the window's scatter is compared with its own sample-to-sample noise (von Neumann's mean square
   successive difference, Ann. Math. Statist. 12 (1941) 367): for white noise the two agree; a

@@ -85,7 +85,10 @@ def test_each_placement_becomes_one_measurement_with_the_right_numbers() -> None
     assert ms[2].checks[0].check == "swingweight" and ms[2].checks[0].verdict is Verdict.FAIL
     alarms = [e.alarm for e in events if isinstance(e, AlarmChanged)]
     assert [(a.kind, a.active) for a in alarms] == [(AlarmKind.OUT_OF_SPEC, True)]
-    assert "LCW-6i-0001" in alarms[0].message
+    # Essentials first and short: the dashboard's alarm banner is one 120-column line.
+    assert alarms[0].message.startswith("club LCW-6i-0001: swing weight D3.")
+    assert "points over the limit (D2 ± 0.5)" in alarms[0].message
+    assert len(alarms[0].message) <= 90
 
 
 def test_a_club_left_on_the_beam_is_captured_once() -> None:

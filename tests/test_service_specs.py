@@ -57,7 +57,7 @@ def test_fail_names_the_failing_checks(
     assert j.verdict is Verdict.FAIL
     assert [c.check for c in j.failed] == failed
     for c in j.failed:
-        assert "limit" in c.message
+        assert "over the limit" in c.message or "under the limit" in c.message
 
 
 def test_per_club_target_overrides() -> None:
@@ -72,3 +72,15 @@ def test_per_club_target_overrides() -> None:
 def test_no_spec_is_not_judged() -> None:
     j = judge(None, None, total_weight_g=1, balance_point_in=1, swingweight_points=1)
     assert j.verdict is Verdict.NO_SPEC and j.checks == []
+
+
+def test_messages_use_the_words_of_the_rest_of_heft_essentials_first() -> None:
+    # QA: "swingweight ... (target D2 +/- 0.5): above the high limit by 1.2"; the rest of heft
+    # says "swing weight" and "±", and a banner cuts what comes last.
+    j = run(D2 + 1.2, 431.0, 26.5)
+    assert [c.message for c in j.checks] == [
+        "swing weight D3.2: 0.7 points over the limit (D2 ± 0.5)",
+        "total weight 431.0 g: 1 g over the limit (400 to 430 g)",
+        "balance point 26.50 in: 0.5 in under the limit (27 to 30 in)",
+    ]
+    assert run(D2).checks[0].message == "swing weight D2.0: in spec (D2 ± 0.5)"
