@@ -255,17 +255,31 @@ class BenchPipeline:
         self._handle(group, group.engine.on_sample(channel, r.t_mono_s, net_g, flags))
 
     def _on_tag(self, tag: ClubTag) -> None:
+        """A scanned club id; on a single-scale station also a balance point.
+
+        Tags there read ``BP:29.25in`` (a balance point), ``LCW-0001`` (a club id) or both,
+        ``LCW-0001 BP:29.25in`` (a traveller card carrying the id and the knife-edge reading).
+        """
         geometry = self.config.geometry
         text = tag.club_id.strip()
-        if isinstance(geometry, SingleScaleGeometry) and text.startswith(
-            geometry.balance_point_prefix
-        ):
+        if not isinstance(geometry, SingleScaleGeometry):
+            self.club_id = text
+            return
+        prefix = geometry.balance_point_prefix
+        club_id: str | None
+        bp: str | None
+        if text.startswith(prefix):
+            club_id, bp = None, text[len(prefix) :]
+        else:
+            head, found, tail = text.rpartition(" " + prefix)
+            club_id, bp = (head.strip(), tail) if found else (text, None)
+        if club_id:
+            self.club_id = club_id  # before the balance point, which may complete a weighing
+        if bp is not None:
             try:
-                self._set_balance_point(text[len(geometry.balance_point_prefix) :], tag.t_mono_s)
+                self._set_balance_point(bp, tag.t_mono_s)
             except SelectionError as err:
                 log.warning("scanner %s: %s", tag.device, err)
-            return
-        self.club_id = text
 
     # ----------------------------------------------------------------------- engine events
 

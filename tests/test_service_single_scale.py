@@ -19,7 +19,7 @@ from daemon.config import StationConfig, load_config
 from daemon.events import Event, MeasurementCaptured
 from daemon.pipeline import BenchPipeline
 from daemon.service import Service
-from drivers.reading import Flag, Reading, ValueKind
+from drivers.reading import ClubTag, Flag, Reading, ValueKind
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
 T0 = datetime(2026, 5, 4, 10, 0, tzinfo=UTC)
@@ -66,3 +66,18 @@ async def test_set_balance_point_reply_carries_the_value_set(tmp_path: Path) -> 
     (m,) = [service._to_store.get_nowait()]  # the weighing paired and went to storage
     assert m.balance_point_in == pytest.approx(29.2)
     assert m.total_weight_g == pytest.approx(405.0, abs=0.01)
+
+
+def test_a_card_carrying_the_club_id_and_its_balance_point(tmp_path: Path) -> None:
+    # The form the qc-2 example's simulated scanner sends ("<club id> BP:<length>").
+    pipeline = BenchPipeline(qc2_config(tmp_path), lambda: T0)
+    events = pipeline.feed(ClubTag("scanner", 0.5, "LCW 7i-0001 BP:29.2in", b""))
+    assert pipeline.club_id == "LCW 7i-0001" and pipeline.balance_point_in == 29.2
+    for r in weighing("balance", 405.0, 1.0, 5.0, 6.0):
+        events.extend(pipeline.feed(r))
+    (m,) = [e.measurement for e in events if isinstance(e, MeasurementCaptured)]
+    assert (m.club_id, m.balance_point_in) == ("LCW 7i-0001", 29.2)
+    # A balance point alone, and an id alone, still work as before.
+    pipeline.feed(ClubTag("scanner", 7.0, "BP:29.5in", b""))
+    pipeline.feed(ClubTag("scanner", 7.1, "LCW-0002", b""))
+    assert (pipeline.club_id, pipeline.balance_point_in) == ("LCW-0002", 29.5)
