@@ -13,6 +13,8 @@ the test expectations must change with it.
 
 from __future__ import annotations
 
+import functools
+import operator
 import random
 import sys
 from collections.abc import Iterable, Sequence
@@ -268,17 +270,24 @@ def malformed(rng: random.Random) -> None:
          description="unit switches, overload lines, truncated and noise lines")
     # e: checksum faults. Good frames are from the firmware's framing; bad ones are edits of them.
     good = [framing.sample_line(i, 1000 + 100 * i, [5000 + i, -3000 - i]) for i in range(8)]
-    wrong_sum = good[1][:-3] + (b"00" if not good[1].endswith(b"00\n") else b"01") + b"\n"
-    t_ms = next(t for t in range(1200, 1300)  # a checksum with a letter in it
-                if not f"{framing.checksum(f'2,{t},5002,-3002'.encode()):02X}".isdigit())
+    # The check is the last 4 characters before the LF; "0000" unless the right CRC is 0000.
+    wrong_sum = good[1][:-5] + (b"0000" if not good[1].endswith(b"*0000\n") else b"0001") + b"\n"
+    t_ms = next(t for t in range(1200, 1300)  # a CRC with a letter in it
+                if not f"{framing.checksum(f'2,{t},5002,-3002'.encode()):04X}".isdigit())
     lower_hex = framing.frame("$", f"2,{t_ms},5002,-3002")
-    lower_hex = lower_hex[:-3] + lower_hex[-3:-1].lower() + b"\n"
+    lower_hex = lower_hex[:-5] + lower_hex[-5:-1].lower() + b"\n"
     no_sum = b"$3,1300,5003,-3003\n"
+    # The form before CRC-16: the two-digit XOR (NMEA 0183 rule) of the same body.
+    xor_body = b"3,1300,5003,-3003"
+    xor_form = b"$" + xor_body + b"*" + b"%02X" % functools.reduce(operator.xor, xor_body) + b"\n"
     flipped = good[4].replace(b"5004", b"5014")  # a corrupted digit, checksum now wrong
+    # Two digits swapped: an XOR sum cannot see it (same bytes, other order), the CRC does.
+    swapped = good[4].replace(b"-3004", b"-3040")
     truncated = good[5][:9]  # the cable jerked: half a line, then the next line runs on
     streams = [
         framing.hello_line("hb-mpy-1.0", 2, 10, 24, "0001"),
-        good[0], wrong_sum, lower_hex, no_sum, flipped, truncated + good[6], good[7],
+        good[0], wrong_sum, lower_hex, no_sum, xor_form, flipped, swapped, truncated + good[6],
+        good[7],
         framing.sample_line(8, 1800, [8388607, -3008]),  # channel 0 saturated high
         framing.sample_line(9, 1900, [5009, -8388608]),  # channel 1 saturated low
         framing.sample_line(12, 2200, [5012, -3012]),  # seq 10 and 11 lost
@@ -288,8 +297,9 @@ def malformed(rng: random.Random) -> None:
     ]
     save(bad / "beam_bad_frames.jsonl", device="beam-1", driver="beam", options={},
          events=lines_at(zip([0.1 * i for i in range(len(streams))], streams, strict=True), rng),
-         description="wrong, lower-case and missing checksums, a flipped digit, a truncated "
-                     "line, ADC saturation, a sequence gap, a channel-count mismatch")
+         description="wrong, lower-case, missing and old two-digit checksums, a flipped digit, "
+                     "two swapped digits, a truncated line, ADC saturation, a sequence gap, a "
+                     "channel-count mismatch")
     # e: a board that prints its boot banner after the DTR reset, then works, then goes silent.
     events = split(0.0, ESP32_BOOT_BANNER, rng, byte_s=BEAM_BYTE_S)
     events += split(0.30, framing.hello_line("hb-mpy-1.0", 1, 80, 24, "0002"), rng,

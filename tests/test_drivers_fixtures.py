@@ -199,8 +199,9 @@ def test_beam_bad_frames() -> None:
         (14, 0, 5014.0, 2.4, n), (14, 1, -3014.0, 2.4, n),
     ]
     s = driver.stats
-    # wrong sum, lower-case sum, no sum, flipped digit, truncated run-on, 3 channels
-    assert s.frame_errors == 6
+    # wrong CRC, lower-case CRC, no check, old two-digit XOR form, flipped digit, swapped digits
+    # (invisible to an XOR sum), truncated run-on, 3 channels
+    assert s.frame_errors == 8
     assert (s.seq_gaps, s.lost_samples) == (3, 6 + 2 + 1)
     assert replies(driver) == [("?", False, None)]  # '#ERR unknown command FOO'
 

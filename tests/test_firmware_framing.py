@@ -6,7 +6,10 @@ BeamDriver and the host's commands through the firmware's parser.
 
 from __future__ import annotations
 
+import functools
 import importlib
+import logging
+import operator
 import py_compile
 import sys
 import types
@@ -24,12 +27,49 @@ from drivers.reading import DeviceInfo, Flag, Reading, ValueKind
 FIRMWARE = Path(__file__).resolve().parent.parent / "drivers" / "firmware" / "heft_beam"
 
 
-def test_nmea_style_checksum_matches_a_published_sentence() -> None:
-    # NMEA 0183 example sentence widely used in receiver manuals (from memory):
-    # $GPGGA,123519,4807.038,N,01131.000,E,1,08,0.9,545.4,M,46.9,M,,*47
-    body = b"GPGGA,123519,4807.038,N,01131.000,E,1,08,0.9,545.4,M,46.9,M,,"
-    assert framing.checksum(body) == 0x47
-    assert host.checksum(body) == 0x47
+def test_crc16_matches_the_catalogue_check_value() -> None:
+    # Greg Cook, "Catalogue of parametrised CRC algorithms", CRC-16/CCITT-FALSE
+    # (width=16 poly=0x1021 init=0xffff refin=false refout=false xorout=0x0000): check=0x29b1.
+    assert framing.checksum(b"123456789") == 0x29B1  # the board's bitwise loop
+    assert host.checksum(b"123456789") == 0x29B1  # the host's binascii.crc_hqx
+
+
+@settings(max_examples=200, deadline=None)
+@given(body=st.binary(max_size=120))
+def test_board_and_host_crc_agree(body: bytes) -> None:
+    assert framing.checksum(body) == host.checksum(body)
+
+
+def test_the_protocol_doc_example_is_what_the_board_sends() -> None:
+    # docs/protocols.md section e quotes this line; its CRC must be the board's.
+    doc = (Path(__file__).resolve().parent.parent / "docs" / "protocols.md").read_text()
+    assert "`$17,40213,445790,278889*B841`" in doc
+    assert framing.sample_line(17, 40213, [445790, 278889]) == b"$17,40213,445790,278889*B841\n"
+
+
+def test_old_two_digit_xor_frames_are_bad_frames(caplog: pytest.LogCaptureFixture) -> None:
+    # Firmware from before the CRC: "$0,10,5000*" + two-digit XOR of the body.
+    body = b"0,10,5000"
+    old = b"$" + body + b"*%02X\n" % functools.reduce(operator.xor, body)
+    driver = BeamDriver("beam-1")
+    with caplog.at_level(logging.WARNING, logger="heft.drivers"):
+        assert driver.feed(old, 1.0) == []
+    assert driver.stats.frame_errors == 1
+    assert "checksum must be 4 hex digits (CRC-16)" in driver.stats.last_error
+    assert any("checksum must be 4 hex digits (CRC-16)" in r.getMessage()
+               and "beam-1" in r.getMessage() for r in caplog.records)
+    # The same body with its CRC reads.
+    assert [r.value for r in driver.feed(framing.frame("$", body.decode()), 1.1)
+            if isinstance(r, Reading)] == [5000.0]
+
+
+def test_lower_case_crc_is_a_bad_frame() -> None:
+    line = framing.frame("$", "0,10,5000")
+    digits = line[-5:-1]
+    assert digits.lower() != digits  # the CRC has a letter to lower
+    driver = BeamDriver("beam-1")
+    assert driver.feed(line[:-5] + digits.lower() + b"\n", 1.0) == []
+    assert driver.stats.frame_errors == 1 and "upper-case" in driver.stats.last_error
 
 
 @settings(max_examples=200, deadline=None)

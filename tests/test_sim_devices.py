@@ -205,14 +205,14 @@ def test_beam_commands_id_rate_reboot_and_errors() -> None:
     dev = _beam()
     dev.advance(2.0)
     reply = _texts(dev.command(b"!ID", 2.0))
-    assert reply[0] == "#OK ID*29\n" and reply[1].startswith("#HELLO heft-beam/1")
+    assert reply[0] == "#OK ID*2CCC\n" and reply[1].startswith("#HELLO heft-beam/1")
     reply = _texts(dev.command(b"!RATE 10", 2.0))
     assert reply[0].startswith("#OK RATE 10*") and " rate=10 " in reply[1]
     samples = dev.advance(3.0)
     assert len(samples) == 10  # now 10 samples/s
     assert _texts(dev.command(b"!RATE 25", 3.0))[0].startswith("#ERR RATE expects 10 or 80*")
     assert _texts(dev.command(b"!FOO", 3.0))[0].startswith("#ERR unknown command !FOO*")
-    assert _texts(dev.command(b"!REBOOT", 3.0)) == ["#OK REBOOT*25\n"]
+    assert _texts(dev.command(b"!REBOOT", 3.0)) == ["#OK REBOOT*ED76\n"]
     after = _texts(dev.advance(3.2))
     assert after == []  # silent while it boots (0.3 s)
     after = _texts(dev.advance(3.5))

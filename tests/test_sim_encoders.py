@@ -9,12 +9,21 @@ import pytest
 from drivers.sim import encoders as enc
 
 
-def _xor(body: bytes) -> int:
-    """The NMEA 0183 checksum, written out independently of the code under test."""
-    c = 0
-    for b in body:
-        c ^= b
-    return c
+def _crc16_by_division(body: bytes) -> int:
+    """CRC-16/CCITT-FALSE as polynomial long division, independent of the code under test.
+
+    The register algorithm with init I over an n-bit message M is the remainder of
+    I*x^n + M*x^16 modulo G = x^16 + x^12 + x^5 + 1 (0x11021) over GF(2) (textbook CRC algebra).
+    """
+    m = (0xFFFF << (8 * len(body))) ^ (int.from_bytes(body, "big") << 16)
+    while m.bit_length() > 16:
+        m ^= 0x11021 << (m.bit_length() - 17)
+    return m
+
+
+def test_reference_crc_meets_the_catalogue_check_value() -> None:
+    # Greg Cook, "Catalogue of parametrised CRC algorithms", CRC-16/CCITT-FALSE: check=0x29b1.
+    assert _crc16_by_division(b"123456789") == 0x29B1
 
 
 def test_poll_reply_matches_the_contract_example() -> None:
@@ -70,9 +79,10 @@ def test_decimals_for_step(step: float, decimals: int) -> None:
     assert enc.decimals_for_step(step) == decimals
 
 
-def test_beam_checksum_by_hand() -> None:
-    # "OK ID": 4F ^ 4B ^ 20 ^ 49 ^ 44 = 29 (worked by hand).
-    assert enc.beam_ok("ID") == b"#OK ID*29\n"
+def test_beam_checksum_against_the_reference_crc() -> None:
+    # "OK ID" -> 0x2CCC by the long division above (and binascii.crc_hqx(b"OK ID", 0xFFFF)).
+    assert _crc16_by_division(b"OK ID") == 0x2CCC
+    assert enc.beam_ok("ID") == b"#OK ID*2CCC\n"
 
 
 def test_beam_lines_carry_a_valid_checksum_and_the_contract_fields() -> None:
@@ -80,9 +90,9 @@ def test_beam_lines_carry_a_valid_checksum_and_the_contract_fields() -> None:
     sample = enc.beam_sample(65537, 2**32 + 5, [8453, -12877])
     err = enc.beam_err("RATE expects 10 or 80")
     for line in (hello, sample, err):
-        m = re.fullmatch(rb"([#$])([^*]*)\*([0-9A-F]{2})\n", line)
+        m = re.fullmatch(rb"([#$])([^*]*)\*([0-9A-F]{4})\n", line)
         assert m is not None, line
-        assert int(m.group(3), 16) == _xor(m.group(2))
+        assert int(m.group(3), 16) == _crc16_by_division(m.group(2))
     assert hello.startswith(b"#HELLO heft-beam/1 fw=hb-0.3.1 ch=2 rate=80 bits=24 sn=X1*")
     assert sample.startswith(b"$1,5,8453,-12877*")  # seq wraps at 65536, t_ms at 2^32
     assert enc.adc_limits(24) == (-8388608, 8388607)

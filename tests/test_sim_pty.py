@@ -64,7 +64,7 @@ def test_beam_over_pty_hello_samples_and_commands(served: PtyDevice) -> None:
         assert any(x.startswith(b"#HELLO heft-beam/1 ") for x in lines)
         port.write(b"!ID\n")
         lines = _lines_until(port, lambda ls: any(x.startswith(b"#HELLO") for x in ls))
-        assert b"#OK ID*29\n" in lines
+        assert b"#OK ID*2CCC\n" in lines
         port.write(b"!RATE 10\r\n")
         lines = _lines_until(port, lambda ls: any(b" rate=10 " in x for x in ls))
         assert any(x.startswith(b"#OK RATE 10*") for x in lines)

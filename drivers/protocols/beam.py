@@ -1,17 +1,17 @@
 """heft beam protocol, version 1 (docs/protocols.md section e, driver ``beam``).
 
 DIY load-cell rigs: HX711-style ADCs behind a microcontroller. Every device line is
-``#...*HH`` or ``$...*HH`` with an NMEA-style XOR checksum; a line with a wrong or missing
-checksum is dropped and counted, so a corrupt sample never becomes a reading. Lines starting with
-anything else (boot banners, debug prints) are noise. Samples become one ``Reading`` per channel
-in raw ADC counts (``ValueKind.COUNTS``); calibration to grams happens above the driver.
+``#...*HHHH`` or ``$...*HHHH`` with a CRC-16/CCITT-FALSE check; a line with a wrong, missing
+or old two-digit check is dropped and counted, so a corrupt sample never becomes a reading. Lines
+starting with anything else (boot banners, debug prints) are noise. Samples become one
+``Reading`` per channel in raw ADC counts (``ValueKind.COUNTS``); calibration to grams happens
+above the driver.
 """
 
 from __future__ import annotations
 
-import functools
+import binascii
 import logging
-import operator
 import re
 from collections.abc import Mapping
 from typing import Any, ClassVar, Final
@@ -34,7 +34,11 @@ PROTOCOL_NAME: Final = "heft-beam"
 PROTOCOL_MAJOR: Final = 1
 SEQ_MODULO: Final = 65536
 T_MS_MODULO: Final = 2**32
-_FRAMED: Final = re.compile(rb"([#$])([\x20-\x29\x2b-\x7e]*)\*([0-9A-F]{2})")
+# Lead, body (printable ASCII without '*'), then whatever follows the '*' (checked below, so a
+# lower-case or two-digit check gets its own message).
+_FRAMED: Final = re.compile(rb"([#$])([\x20-\x29\x2b-\x7e]*)\*([\x20-\x7e]*)")
+_CHECK_DIGITS: Final = re.compile(rb"[0-9A-F]{4}")
+CRC16_INIT: Final = 0xFFFF
 _HELLO_VERSION: Final = re.compile(r"heft-beam/(\d+)(?:\.(\d+))?")
 _HELLO_REQUIRED: Final = ("fw", "ch", "rate", "bits")
 _RATE_ARG: Final = re.compile(r"[0-9]{1,6}")  # ASCII only: str.isdigit() also takes "\u00b2"
@@ -42,8 +46,12 @@ _COMMAND_ECHOES: Final = {"ID": "identify", "RATE": "rate", "REBOOT": "reboot"}
 
 
 def checksum(body: bytes) -> int:
-    """XOR of every byte of ``body`` (the part between the lead character and ``*``)."""
-    return functools.reduce(operator.xor, body, 0)
+    """CRC-16/CCITT-FALSE of ``body`` (the part between the lead character and ``*``).
+
+    Poly 0x1021, init 0xFFFF, no reflection, no final xor: ``binascii.crc_hqx`` with init 0xFFFF.
+    The firmware's ``framing.checksum`` computes the same bit by bit (MicroPython lacks crc_hqx).
+    """
+    return binascii.crc_hqx(body, CRC16_INIT)
 
 
 class BeamOptions(LineOptions):
@@ -105,10 +113,16 @@ class BeamDriver(LineDriver):
             raise FrameError("not a beam line", noise=True)
         m = _FRAMED.fullmatch(line)
         if m is None:
-            raise FrameError("no '*HH' checksum or bytes outside printable ASCII")
-        lead, body, sent = m.group(1), m.group(2), int(m.group(3), 16)
-        if checksum(body) != sent:
-            raise FrameError(f"checksum {sent:02X}, computed {checksum(body):02X}")
+            raise FrameError("no '*HHHH' checksum or bytes outside printable ASCII")
+        lead, body, digits = m.group(1), m.group(2), m.group(3)
+        if not _CHECK_DIGITS.fullmatch(digits):
+            if _CHECK_DIGITS.fullmatch(digits.upper()):
+                raise FrameError(f"checksum {digits.decode()!r} must be upper-case hex")
+            raise FrameError(
+                f"checksum must be 4 hex digits (CRC-16), got {digits[:8].decode()!r}")
+        sent, computed = int(digits, 16), checksum(body)
+        if computed != sent:
+            raise FrameError(f"checksum {sent:04X}, computed {computed:04X}")
         text = body.decode("ascii")
         if lead == b"$":
             return self._sample(text, line, t_mono_s)

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from decimal import Decimal
 
-# One implementation of the XOR (NMEA 0183) rule, shared with the host-side parser.
+# One implementation of the CRC-16/CCITT-FALSE check, shared with the host-side parser.
 from drivers.protocols.beam import checksum as beam_checksum
 
 CRLF = b"\r\n"
@@ -114,11 +114,11 @@ BEAM_PROTOCOL = "heft-beam/1"
 
 
 def beam_line(lead: str, body: str) -> bytes:
-    """``<lead><body>*HH\\n`` with the checksum in two upper-case hex digits."""
+    """``<lead><body>*HHHH\\n``: the CRC-16 check in four upper-case hex digits."""
     if lead not in ("#", "$"):
         raise ValueError(f"beam lines start with '#' or '$', not {lead!r}")
     raw = body.encode("ascii")
-    return lead.encode("ascii") + raw + b"*" + f"{beam_checksum(raw):02X}".encode("ascii") + LF
+    return lead.encode("ascii") + raw + b"*" + f"{beam_checksum(raw):04X}".encode("ascii") + LF
 
 
 def beam_hello(*, firmware: str, channels: int, rate_hz: int, bits: int, serial: str) -> bytes:
@@ -130,7 +130,7 @@ def beam_hello(*, firmware: str, channels: int, rate_hz: int, bits: int, serial:
 
 
 def beam_sample(seq: int, t_ms: int, counts: list[int]) -> bytes:
-    """``$<seq>,<t_ms>,<c0>[,<c1>...]*HH``; seq wraps at 65536, t_ms at 2^32."""
+    """``$<seq>,<t_ms>,<c0>[,<c1>...]*HHHH``; seq wraps at 65536, t_ms at 2^32."""
     fields = [str(seq % 65536), str(t_ms % 2**32), *(str(c) for c in counts)]
     return beam_line("$", ",".join(fields))
 

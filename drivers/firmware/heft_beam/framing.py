@@ -10,22 +10,39 @@ T_MS_MODULO = 1 << 32
 MAX_COMMAND_BYTES = 64
 
 
+CRC16_POLY = 0x1021
+CRC16_INIT = 0xFFFF
+
+
 def checksum(body):
-    """XOR of every byte of ``body`` (bytes between the lead character and ``*``)."""
-    c = 0
+    """CRC-16/CCITT-FALSE of ``body`` (bytes between the lead character and ``*``).
+
+    Poly 0x1021, init 0xFFFF, most significant bit first, no final xor. Bit by bit and
+    table-free (eight shifts per byte, no RAM for a table): MicroPython has no
+    ``binascii.crc_hqx``. The host computes the same with ``binascii.crc_hqx(body, 0xFFFF)``.
+    """
+    crc = CRC16_INIT
     for b in body:
-        c ^= b
-    return c
+        crc ^= b << 8
+        for _ in range(8):
+            if crc & 0x8000:
+                crc = ((crc << 1) ^ CRC16_POLY) & 0xFFFF
+            else:
+                crc = (crc << 1) & 0xFFFF
+    return crc
 
 
 def frame(lead, body):
-    """``lead + body + '*HH\\n'`` as bytes; ``lead`` is '#' (messages) or '$' (samples)."""
+    """``lead + body + '*HHHH\\n'`` as bytes; ``lead`` is '#' (messages) or '$' (samples).
+
+    ``HHHH`` is the CRC-16 of the body in four upper-case hex digits.
+    """
     if lead not in ("#", "$"):
         raise ValueError("lead must be '#' or '$'")
     raw = body.encode()
     if b"*" in raw or b"\n" in raw or b"\r" in raw:
         raise ValueError("body may not contain '*' or line ends")
-    return lead.encode() + raw + b"*" + ("%02X" % checksum(raw)).encode() + b"\n"
+    return lead.encode() + raw + b"*" + ("%04X" % checksum(raw)).encode() + b"\n"
 
 
 def hello_line(firmware, channels, rate_hz, bits, serial):
