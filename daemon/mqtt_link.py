@@ -587,6 +587,9 @@ async def _first_error(*coros: Coroutine[Any, Any, None]) -> None:
         # Not gather(): one cancel can be lost in aiomqtt (raise_if_cancel_requested), and a
         # lost cancel here left the link's shutdown waiting forever on a connected client.
         await cancel_until_done(tasks)
+        for task in tasks:  # retrieve every outcome: none is logged as "never retrieved"
+            if not task.cancelled():
+                task.exception()
     for task in done:
         if not task.cancelled() and (err := task.exception()) is not None:
             raise err
