@@ -26,7 +26,7 @@ from tui.app import HeftDashboard
 from tui.calibration import CalibrationScreen
 from tui.format import READ_ONLY_HINT
 from tui.mqtt_source import MqttSource
-from tui.readout import AlarmBanner, VerdictBanner
+from tui.readout import AlarmBanner, VerdictBanner, split_label
 from tui.scripted_bench import (
     JOBS,
     STATION,
@@ -35,7 +35,7 @@ from tui.scripted_bench import (
     session_events,
 )
 from tui.source import InProcessSource, ScriptedSource
-from tui.tables import AlarmsTable
+from tui.tables import AlarmsTable, MeasurementsTable
 
 SIZE = (120, 40)
 
@@ -340,3 +340,36 @@ async def test_unreachable_broker_is_shown_with_the_retry() -> None:
         await settle(pilot, app, lambda: "cannot reach 127.0.0.1:1" in app.sub_title)
         assert "retrying" in app.sub_title
         assert "waiting for a station" in app.sub_title
+
+
+async def test_80x24_keeps_the_essentials_on_screen() -> None:
+    app, _ = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, app, lambda: len(app.state.measurements) == 7)
+        await settle(pilot, app, lambda: len(app.query("ChannelRow")) == 2)
+        await pilot.pause(0.3)
+        assert app.has_class("short") and app.has_class("narrow")
+        screen = app.screen.region
+        for selector in ("#verdict", "#alarm-banner", "#sw-letter", "#sw-digits", "#capture",
+                         "#measurements", "ChannelRow"):
+            for widget in app.query(selector):
+                region = widget.region
+                assert region.height > 0 and screen.contains_region(region), selector
+        # Every key the footer offers fits on its one line, Help and Quit included.
+        keys = [k for k in app.query("FooterKey") if k.region.width > 0]
+        assert {k.key for k in keys} >= {"question_mark", "q", "a", "c"}  # type: ignore[attr-defined]
+        assert all(screen.contains_region(k.region) for k in keys)
+        headers = [str(c.label) for c in app.query_one(MeasurementsTable).columns.values()]
+        assert "club id" in headers and "verdict" in headers
+        await pilot.press("2")
+        plot = app.query_one("#plot-sw")
+        # Room for the band, the ticks and the points (it was 3 rows before the layout fit).
+        await settle(pilot, app, lambda: plot.region.height >= 12)
+        assert not app.query_one("#plot-weight").display
+
+
+def test_swing_weight_letter_is_drawn_apart_from_the_digits() -> None:
+    assert split_label("D2.0") == ("D", "2.0")
+    assert split_label("G0+") == ("G", "0+")
+    assert split_label("C9.95") == ("C", "9.95")
+    assert split_label("--.-") == ("", "--.-")

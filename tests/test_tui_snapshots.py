@@ -1,4 +1,4 @@
-"""SVG snapshots of the dashboard's screens at 120x40, from the fixed scripted session.
+"""SVG snapshots of the dashboard's screens at 120x40 (and 80x24), from the fixed scripted session.
 
 Regenerate after an intended change with ``pytest tests/test_tui_snapshots.py --snapshot-update``
 and look at the SVGs before committing them (textual is pinned in pyproject.toml).
@@ -67,13 +67,14 @@ def test_live_screen(snap_compare: Snap) -> None:
     assert snap_compare(_app(), terminal_size=SIZE, run_before=_replayed)
 
 
-def test_set_screen(snap_compare: Snap) -> None:
-    async def go(pilot: Pilot[Any]) -> None:
-        await _replayed(pilot)
-        await pilot.press("2")
-        await pilot.pause(0.2)
+async def _set_tab(pilot: Pilot[Any]) -> None:
+    await _replayed(pilot)
+    await pilot.press("2")
+    await pilot.pause(0.2)
 
-    assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+def test_set_screen(snap_compare: Snap) -> None:
+    assert snap_compare(_app(), terminal_size=SIZE, run_before=_set_tab)
 
 
 def test_devices_screen(snap_compare: Snap) -> None:
@@ -114,3 +115,14 @@ def test_help_screen(snap_compare: Snap) -> None:
         await pilot.pause(0.2)
 
     assert snap_compare(_app(), terminal_size=SIZE, run_before=go)
+
+
+SMALL = (80, 24)  # the smallest terminal the dashboard is laid out for
+
+
+def test_live_screen_at_80x24(snap_compare: Snap) -> None:
+    assert snap_compare(_app(), terminal_size=SMALL, run_before=_replayed)
+
+
+def test_set_screen_at_80x24(snap_compare: Snap) -> None:
+    assert snap_compare(_app(), terminal_size=SMALL, run_before=_set_tab)

@@ -36,6 +36,8 @@ from tui.tables import AlarmsTable, DevicesTable, MeasurementsTable
 log = logging.getLogger(__name__)
 
 REFRESH_HZ = 10.0
+SHORT_ROWS = 32  # fewer rows than this: one-line verdict, fewer gauges, one plot on Set
+NARROW_COLS = 100  # fewer columns: narrower readout, fewer table columns
 BACKFILL = 100
 TABS = ("live", "set", "devices", "alarms")
 COMMAND_KEYS = frozenset({"a", "j", "c", "r", "t"})
@@ -51,10 +53,11 @@ class HeftDashboard(App[None]):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("1", "tab('live')", "Live"),
-        Binding("2", "tab('set')", "Set"),
-        Binding("3", "tab('devices')", "Devices"),
-        Binding("4", "tab('alarms')", "Alarms"),
+        # The tab keys are written on the tabs themselves ("1 Live" ...), not in the footer.
+        Binding("1", "tab('live')", "Live", show=False),
+        Binding("2", "tab('set')", "Set", show=False),
+        Binding("3", "tab('devices')", "Devices", show=False),
+        Binding("4", "tab('alarms')", "Alarms", show=False),
         Binding("a", "acknowledge", "Ack"),
         Binding("j", "select_job", "Job"),
         Binding("c", "calibrate", "Calibrate"),
@@ -110,7 +113,17 @@ class HeftDashboard(App[None]):
                 yield AlarmsTable(id="alarms-table")
         yield Footer()
 
+    def on_resize(self, event: events.Resize) -> None:
+        self._fit(event.size.width, event.size.height)
+
+    def _fit(self, width: int, height: int) -> None:
+        """Below SHORT_ROWS / NARROW_COLS the stylesheet drops the less important parts."""
+        self.set_class(height < SHORT_ROWS, "short")
+        self.set_class(width < NARROW_COLS, "narrow")
+        self.query_one(MeasurementsTable).set_compact(width < NARROW_COLS)
+
     async def on_mount(self) -> None:
+        self._fit(self.size.width, self.size.height)
         self._set_subtitle()
         await self.source.start()
         self._consume()
@@ -230,9 +243,8 @@ class HeftDashboard(App[None]):
             return False
         if action in COMMAND_ACTIONS and not self.source.commands_enabled:
             return None
-        if action == "station" and len(self.state.stations) < 2:
-            return None
-        return True
+        # The station key is hidden until a second station publishes (room in the footer).
+        return not (action == "station" and len(self.state.stations) < 2)
 
     def on_key(self, event: events.Key) -> None:
         """A command key on a read-only dashboard says why nothing happens."""

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.containers import Vertical
+from textual.containers import Horizontal, Vertical
 from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Digits, Static
@@ -64,20 +64,30 @@ class Readout(Vertical):
 
     def compose(self) -> ComposeResult:
         yield Static("SWING WEIGHT (14 in, Lorythmic)", classes="caption")
-        yield Digits("--.-", id="sw-digits")
+        with Horizontal(id="sw-row"):
+            yield Static("-", id="sw-letter")
+            yield Digits("--.-", id="sw-digits")
         yield Static("", id="sw-detail")
         yield Static("", id="numbers")
+        yield Static("", id="numbers-oz")
         yield Static("", id="club-line")
 
     def show(self, m: Measurement | None) -> None:
         digits = self.query_one("#sw-digits", Digits)
+        letter = self.query_one("#sw-letter", Static)
         if m is None:
+            letter.update("-")
             digits.update("--.-")
             self.query_one("#sw-detail", Static).update("waiting for the first club")
             self.query_one("#numbers", Static).update("")
+            self.query_one("#numbers-oz", Static).update("")
             self.query_one("#club-line", Static).update("")
             return
-        digits.update(m.swingweight)
+        # Digits draws letters in its own font, where D reads as 0 and G comes out small: the
+        # letter goes in a boxed cell of its own and only the number is drawn in Digits.
+        head, number = split_label(m.swingweight)
+        letter.update(head or "-")
+        digits.update(number)
         self.remove_class(*VERDICT_CLASS.values())
         self.add_class(VERDICT_CLASS[m.verdict])
         u = m.swingweight_points_u
@@ -89,14 +99,23 @@ class Readout(Vertical):
             ("total weight", with_u(m.total_weight_g, m.total_weight_g_u, 1, "g")),
             ("balance point", with_u(m.balance_point_in, m.balance_point_in_u, 2, "in")),
             ("moment @14 in", with_u(m.moment_g_in, m.moment_g_in_u, 0, "g·in")),
-            ("", with_u(m.moment_oz_in, m.moment_oz_in_u, 1, "oz·in")),
         ]
         self.query_one("#numbers", Static).update(
             "\n".join(f"{name:<14}{value}" for name, value in rows)
         )
+        oz = with_u(m.moment_oz_in, m.moment_oz_in_u, 1, "oz·in")
+        self.query_one("#numbers-oz", Static).update(f"{'':<14}{oz}")
         parts = [f"#{m.seq}", m.club or "", m.club_id or "", f"job {m.job or '-'}",
                  f"spec {m.spec or '-'}"]
         self.query_one("#club-line", Static).update(Text("  ".join(p for p in parts if p)))
+
+
+def split_label(label: str) -> tuple[str, str]:
+    """``'D2.0'`` -> ``('D', '2.0')``, ``'G0+'`` -> ``('G', '0+')``; no letter: ``('', label)``."""
+    i = 0
+    while i < len(label) and label[i].isalpha():
+        i += 1
+    return label[:i], label[i:].strip()
 
 
 class ToleranceGauge(Widget):

@@ -14,6 +14,22 @@ from daemon.measurement import Measurement, Verdict
 from daemon.physics.swingweight import describe_points
 from tui.state import club_order_key, find_check
 
+BAND_COLOUR = "cyan"
+OK_MARKER = "o"
+FAIL_MARKER = "X"
+
+
+def legend_text() -> Text:
+    """The plots' legend, one line, off the data: the band's two edges are one target band."""
+    text = Text(" ")
+    text.append("⠒⠒⠒ ", style=BAND_COLOUR)
+    text.append("target band (the spec's limits)   ")
+    text.append(f"{OK_MARKER} ", style="green")
+    text.append("in spec   ")
+    text.append(f"{FAIL_MARKER} ", style="bold red")
+    text.append("FAIL")
+    return text
+
 
 @dataclass(frozen=True, slots=True)
 class ClubPoint:
@@ -59,7 +75,11 @@ def points_for(
 
 
 class BandPlot(PlotextPlot):
-    """One check per club: the measured values, failures marked, the band's low and high."""
+    """One check per club: the measured values, failures marked, the band's low and high.
+
+    No plotext legend: it is drawn inside the plot area, over the data. SetView shows one
+    legend line above the plots instead (:func:`legend_text`).
+    """
 
     def __init__(
         self, check: str, title: str, *, centred: bool = False, id: str | None = None
@@ -83,18 +103,15 @@ class BandPlot(PlotextPlot):
         lows = [p.low for p in pts]
         highs = [p.high for p in pts]
         if all(v is not None for v in lows + highs):
-            plt.plot(xs, [float(v) for v in lows if v is not None], color="cyan",
-                     label="low limit", marker="braille")
-            plt.plot(xs, [float(v) for v in highs if v is not None], color="cyan",
-                     label="high limit", marker="braille")
+            for limits in (lows, highs):  # the two edges of one target band
+                plt.plot(xs, [float(v) for v in limits if v is not None], color=BAND_COLOUR,
+                         marker="braille")
         ok = [(x, p.value) for x, p in zip(xs, pts, strict=True) if not p.failed]
         bad = [(x, p.value) for x, p in zip(xs, pts, strict=True) if p.failed]
         if ok:
-            plt.scatter([x for x, _ in ok], [v for _, v in ok], color="green", marker="o",
-                        label="in spec")
+            plt.scatter([x for x, _ in ok], [v for _, v in ok], color="green", marker=OK_MARKER)
         if bad:
-            plt.scatter([x for x, _ in bad], [v for _, v in bad], color="red", marker="X",
-                        label="FAIL")
+            plt.scatter([x for x, _ in bad], [v for _, v in bad], color="red", marker=FAIL_MARKER)
         values = [p.value for p in pts] + [v for v in lows + highs if v is not None]
         lo, hi = min(values), max(values)
         pad = (hi - lo) * 0.15 or 1.0
@@ -123,6 +140,7 @@ class SetView(Vertical):
 
     def compose(self) -> ComposeResult:
         yield Static("", id="set-summary")
+        yield Static(legend_text(), id="set-legend")
         yield BandPlot("swingweight", "swing weight per club (Lorythmic)", id="plot-sw")
         yield BandPlot(
             "total_weight",

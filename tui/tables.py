@@ -33,7 +33,11 @@ class _Table(DataTable[str | Text]):
         super().__init__(id=id, cursor_type="row", zebra_stripes=True)
 
     def on_mount(self) -> None:
-        self.add_columns(*self.COLUMNS)
+        if not self.columns:
+            self.add_columns(*self.shown_columns())
+
+    def shown_columns(self) -> tuple[str, ...]:
+        return self.COLUMNS
 
     def _rebuild(self, rows: Iterable[tuple[str, tuple[str | Text, ...]]]) -> None:
         keep = self.cursor_row
@@ -48,27 +52,50 @@ class MeasurementsTable(_Table):
     # The verdict comes early so that a narrow terminal still shows it.
     COLUMNS = ("#", "time UTC", "club", "verdict", "swing wt", "± pt", "total g", "BP in",
                "moment g·in", "club id")
+    # On a narrow terminal: what a bench operator checks, club id included.
+    COMPACT_COLUMNS = ("#", "club", "verdict", "swing wt", "total g", "BP in", "club id")
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.compact = False
+        self._shown: list[Measurement] = []
+
+    def shown_columns(self) -> tuple[str, ...]:
+        return self.COMPACT_COLUMNS if self.compact else self.COLUMNS
+
+    def set_compact(self, compact: bool) -> None:
+        """Switch between all columns and the narrow set (rebuilds the table)."""
+        if compact == self.compact:
+            return
+        self.compact = compact
+        if self.columns:  # else on_mount adds the right ones
+            self.clear(columns=True)
+            self.add_columns(*self.shown_columns())
+            self.show(self._shown)
 
     def show(self, measurements: Iterable[Measurement], limit: int = 100) -> None:
         newest_first = list(measurements)[::-1][:limit]
+        self._shown = newest_first[::-1]
+        wanted = [self.COLUMNS.index(c) for c in self.shown_columns()]
         self._rebuild(
-            (
-                str(m.id),
-                (
-                    str(m.seq),
-                    m.time_utc.strftime("%H:%M:%S"),
-                    m.club or "-",
-                    Text(VERDICT_WORDS[m.verdict], style=VERDICT_STYLE[m.verdict]),
-                    m.swingweight,
-                    _num(m.swingweight_points_u, 2),
-                    f"{m.total_weight_g:.1f}",
-                    f"{m.balance_point_in:.2f}",
-                    f"{m.moment_g_in:.0f}",
-                    m.club_id or "-",
-                ),
-            )
-            for m in newest_first
+            (str(m.id), tuple(_measurement_cells(m)[i] for i in wanted)) for m in newest_first
         )
+
+
+def _measurement_cells(m: Measurement) -> tuple[str | Text, ...]:
+    """One row in MeasurementsTable.COLUMNS order."""
+    return (
+        str(m.seq),
+        m.time_utc.strftime("%H:%M:%S"),
+        m.club or "-",
+        Text(VERDICT_WORDS[m.verdict], style=VERDICT_STYLE[m.verdict]),
+        m.swingweight,
+        _num(m.swingweight_points_u, 2),
+        f"{m.total_weight_g:.1f}",
+        f"{m.balance_point_in:.2f}",
+        f"{m.moment_g_in:.0f}",
+        m.club_id or "-",
+    )
 
 
 def last_reading_text(raw: float | None, grams: float | None) -> str:
