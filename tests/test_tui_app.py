@@ -340,6 +340,8 @@ async def test_unreachable_broker_is_shown_with_the_retry() -> None:
         await settle(pilot, app, lambda: "cannot reach 127.0.0.1:1" in app.sub_title)
         assert "retrying" in app.sub_title
         assert "waiting for a station" in app.sub_title
+        banner = app.query_one(VerdictBanner)  # said where it cannot be missed, too
+        await settle(pilot, app, lambda: "cannot reach 127.0.0.1:1" in str(banner.render()))
 
 
 async def test_80x24_keeps_the_essentials_on_screen() -> None:

@@ -120,6 +120,7 @@ class HeftDashboard(App[None]):
         """Below SHORT_ROWS / NARROW_COLS the stylesheet drops the less important parts."""
         self.set_class(height < SHORT_ROWS, "short")
         self.set_class(width < NARROW_COLS, "narrow")
+        self.title = "heft" if width < NARROW_COLS else self.TITLE
         self.query_one(MeasurementsTable).set_compact(width < NARROW_COLS)
 
     async def on_mount(self) -> None:
@@ -188,12 +189,17 @@ class HeftDashboard(App[None]):
         if self._moved("measurements", rev.measurements):
             last = s.last_measurement
             self.query_one(VerdictBanner).show(last)
+            self._drawn.pop("waiting", None)
             self.query_one(Readout).show(last)
             for gauge in self.query(ToleranceGauge):
                 gauge.show(last)
             self.query_one(MeasurementsTable).show(s.measurements)
             self._drawn.pop("set", None)
             self._ring_for_fail()
+        if s.last_measurement is None:  # the banner says why nothing is shown yet
+            link = self.source.connection_text(time.monotonic())
+            if link and self._moved("waiting", hash(link)):
+                self.query_one(VerdictBanner).show(None, waiting=link)
         settling = s.capture_state is CaptureState.SETTLING
         if self._moved("capture", hash((rev.capture, rev.live if settling else 0))):
             self.query_one(CaptureLine).show(s.capture, s.load_g())

@@ -104,9 +104,9 @@ class Banner:
     css_class: str
 
 
-def verdict_banner(m: Measurement | None) -> Banner:
+def verdict_banner(m: Measurement | None, *, waiting: str = "") -> Banner:
     if m is None:
-        return Banner("WAITING", "no club measured yet", "idle")
+        return Banner("WAITING", waiting or "no club measured yet", "idle")
     who = f"#{m.seq}" + (f" {m.club}" if m.club else "") + (f" {m.club_id}" if m.club_id else "")
     failing = [c for c in m.checks if c.verdict is Verdict.FAIL]
     near = [c for c in m.checks if c.verdict is Verdict.NEAR_LIMIT]

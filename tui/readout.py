@@ -28,8 +28,9 @@ _BANNER_CLASSES = ("pass", "near", "fail", "nospec", "idle")
 class VerdictBanner(Static):
     """Full-width verdict: the word (PASS / NEAR LIMIT / FAIL / NO SPEC) and why."""
 
-    def show(self, m: Measurement | None) -> None:
-        banner = verdict_banner(m)
+    def show(self, m: Measurement | None, *, waiting: str = "") -> None:
+        """``waiting``: why there is no club yet (e.g. the broker cannot be reached)."""
+        banner = verdict_banner(m, waiting=waiting)
         self.remove_class(*_BANNER_CLASSES)
         self.add_class(banner.css_class)
         text = Text()
