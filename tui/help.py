@@ -22,10 +22,11 @@ service's events and sends commands the service may accept or refuse.
   repeats it.
 - **Alarm banner**: appears while an alarm is active and not yet acknowledged. Press **a** to
   acknowledge the newest one, or open the Alarms tab to pick one.
-- **Swing weight** on the 14-inch Lorythmic scale in large digits, with its points and expanded
-  uncertainty (k = 2). Below: total weight, balance point from the butt, moment about 14 in.
-- **Capture**: EMPTY (ready), SETTLING (hands off), CAPTURED, HOLDING (lift the club to re-arm),
-  WILL NOT SETTLE, OFFLINE.
+- **Swing weight** on the 14-inch Lorythmic scale: the letter in a box, the number in large
+  digits, with its points and expanded uncertainty (k = 2). Below: total weight, balance point
+  from the butt, moment about 14 in.
+- **Capture**: EMPTY (ready), SETTLING (hands off; the load on the beam now), CAPTURED,
+  HOLDING (lift the club to re-arm), WILL NOT SETTLE, OFFLINE.
 - **Gauges**: where the last club sits in each band of the spec; the marker line says INSIDE,
   NEAR LIMIT, ABOVE or BELOW.
 - **Channels**: each support's live value with a flag word (stable, motion, OVERLOAD...) and a
@@ -33,10 +34,11 @@ service's events and sends commands the service may accept or refuse.
 
 ## Set
 Swing weight and total weight of the latest measurement of each club in the current job,
-against the low and high limits; failures are drawn as X.
+against the target band (two lines: the spec's low and high limits); failures are drawn as X.
 
 ## Devices
-Connected or not, port, sample rate, frame errors, last reading, model and firmware.
+Connected or not, port, sample rate, frame errors, last reading (grams, or raw counts when no
+calibrated channel reports), model and firmware.
 
 ## Alarms
 History, newest first. ACTIVE alarms are shown on red; **a** acknowledges the selected one.
@@ -60,7 +62,9 @@ capacity and fix the beam so it cannot fall.
 | ? | this help |
 | q | quit (the demo also stops its simulated bench) |
 
-A dashboard started with `heft dash` is read-only unless it was started with `--commands`.
+A dashboard started with `heft dash` is read-only unless it was started with `--commands`; a
+command key then says so instead of acting. The header shows the link to the broker:
+connecting, connected, or cannot reach host:port with the time to the next try.
 """
 
 
