@@ -247,11 +247,16 @@ class RecordingTransport:
         self.description = f"{inner.description} (recorded)"
         self._clock = clock
         self._t0: float | None = None
+        # The clock reading taken when the last chunk arrived. A DeviceSession stamps its
+        # readings with this same number, so a replay of the recording sees exactly the
+        # timeline the live pipeline saw (not one a file write later).
+        self.last_rx_mono_s: float | None = None
 
-    def _t(self) -> float:
+    def _t(self, now: float | None = None) -> float:
+        now = self._clock() if now is None else now
         if self._t0 is None:
-            self._t0 = self._clock()
-        return max(0.0, self._clock() - self._t0)
+            self._t0 = now
+        return max(0.0, now - self._t0)
 
     async def open(self) -> None:
         await self.inner.open()
@@ -259,7 +264,8 @@ class RecordingTransport:
 
     async def read(self) -> bytes:
         data = await self.inner.read()
-        self.writer.write_rx(self._t(), data)
+        self.last_rx_mono_s = now = self._clock()
+        self.writer.write_rx(self._t(now), data)
         return data
 
     async def write(self, data: bytes) -> None:

@@ -86,7 +86,7 @@ class DeviceSession:
                 chunk = pending.result()  # raises TransportError on loss
                 pending = None
                 last_rx = loop.time()
-                stamp = self.last_rx_mono_s = self._clock()
+                stamp = self.last_rx_mono_s = self._arrival_stamp()
                 produced = self.driver.feed(chunk, stamp)
                 self._deliver_replies()
                 for item in produced:
@@ -102,6 +102,15 @@ class DeviceSession:
                     fut.set_exception(TransportError(f"device {self.device_name!r} closed"))
             self._waiting.clear()
             await self.transport.close()
+
+    def _arrival_stamp(self) -> float:
+        """The arrival time of the chunk just read.
+
+        A recording transport already read the clock when the chunk arrived and wrote that
+        number to its file; using the same number keeps live and replayed timelines identical.
+        """
+        recorded = getattr(self.transport, "last_rx_mono_s", None)
+        return recorded if isinstance(recorded, float) else self._clock()
 
     def _wait_time(self, now: float, next_poll: float | None, last_rx: float) -> float | None:
         deadlines = []
