@@ -6,11 +6,6 @@ only after ``publish()`` returned, i.e. after the broker's PUBACK. Anything not 
 the connection drops stays in the outbox and goes out again after the reconnect; the payload
 carries the measurement ``id`` so consumers drop the duplicates this can cause.
 
-Fast path: the bus event arrives only after the commit, so when the last outbox read found
-nothing pending the link publishes the event's measurement straight away (same payload, topic
-and QoS) and marks its row sent after the PUBACK, saving the outbox re-read in a worker thread.
-One task publishes both ways, so they never race; with a backlog it reads the outbox instead.
-
 Everything else the link publishes is state it keeps in memory from bus events (capture state,
 device status, active alarms, the newest live value per channel); after a reconnect it publishes
 that state again, so the broker's retained copies are always current.
@@ -52,7 +47,6 @@ from daemon.events import (
     MeasurementCaptured,
     Subscription,
 )
-from daemon.measurement import Measurement
 from daemon.mqtt_settings import MqttSettings
 from daemon.mqtt_topics import (
     OFFLINE,
@@ -168,11 +162,6 @@ class MqttLink:
         self._bad_channels: set[str] = set()
         self._changed = asyncio.Event()
         self._wake = asyncio.Event()
-        # Committed measurements from the bus, for the fast path (drain loop only).
-        self._fresh: deque[Measurement] = deque()
-        self._reread = False  # the outbox may hold rows the fast path does not know of
-        self._last_seq: dict[str, int] = {}  # per station, the newest seq acknowledged
-        self.published_direct = 0  # of published_measurements, how many took the fast path
         self._connected = asyncio.Event()
         self.published_measurements = 0  # acknowledged by the broker, this process
 
@@ -186,8 +175,7 @@ class MqttLink:
         await self._connected.wait()
 
     def wake(self) -> None:
-        """A measurement was stored: read and drain the outbox now."""
-        self._reread = True
+        """A measurement was stored: drain the outbox now (the bus event does this too)."""
         self._wake.set()
 
     async def run(self) -> None:
@@ -318,9 +306,6 @@ class MqttLink:
             last = []
         if last:
             await client.publish(t.measurement_last, _json(last[0]), qos=1, retain=True)
-            # The fast path needs the seq before the next one; the drain's first read checks
-            # that nothing older is pending.
-            self._last_seq.setdefault(last[0].station, last[0].seq)
         self._mark_all_dirty()
         raise_if_cancel_requested()  # a cancel lost in a publish above must not start the session
         self._connected.set()
@@ -340,42 +325,21 @@ class MqttLink:
     # ------------------------------------------------------------------ measurements
 
     async def _drain_outbox(self, client: aiomqtt.Client) -> None:
-        # True only after an outbox read found nothing pending: every measurement in _fresh
-        # was then committed after that read, in order, and is its station's oldest unsent.
-        outbox_clear = False
         while True:
-            if outbox_clear and not self._reread:
-                if self._fresh:
-                    m = self._fresh.popleft()
-                    # A gap in the station's seq means rows the bus did not announce (stored
-                    # while this process was away, say): the outbox sends them in order.
-                    if self._last_seq.get(m.station) == m.seq - 1:
-                        outbox_clear = await self._publish_fresh(client, m)
-                    else:
-                        outbox_clear = False
-                    continue
-                self._wake.clear()
-                await self._wake.wait()
-                continue
             self._wake.clear()  # clear before reading: a store during the read wakes us again
-            self._reread = False
-            # Everything in _fresh now was committed before this read: the read returns it.
-            self._fresh.clear()
             try:
                 rows = await asyncio.to_thread(self._store.outbox_pending, OUTBOX_BATCH)
             except StorageError as err:
                 log.error("cannot read the outbox: %s; retrying", err)
-                self._reread = True
                 await asyncio.sleep(1.0)
                 continue
-            outbox_clear = not rows
             if not rows:
+                await self._wake.wait()
                 continue
             for outbox_id, m in rows:
                 await client.publish(self.topics.measurement, _json(m), qos=1)
                 # publish() returned: PUBACK arrived. Only now is the row done.
                 self.published_measurements += 1
-                self._last_seq[m.station] = m.seq
                 try:
                     await asyncio.to_thread(self._store.mark_sent, outbox_id)
                 except StorageError as err:  # it will be sent again: a duplicate, same id
@@ -383,24 +347,6 @@ class MqttLink:
             await client.publish(
                 self.topics.measurement_last, _json(rows[-1][1]), qos=1, retain=True
             )
-
-    async def _publish_fresh(self, client: aiomqtt.Client, m: Measurement) -> bool:
-        """Publish a just-committed measurement from the bus; False: re-read the outbox."""
-        await client.publish(self.topics.measurement, _json(m), qos=1)
-        # publish() returned: PUBACK arrived. Only now is the row done.
-        self.published_measurements += 1
-        self.published_direct += 1
-        self._last_seq[m.station] = m.seq
-        try:
-            marked = await asyncio.to_thread(self._store.mark_sent_measurement, str(m.id))
-        except StorageError as err:  # the outbox read sends it again: a duplicate, same id
-            log.error("cannot mark measurement %s sent: %s", m.id, err)
-            return False
-        if not marked:  # not in the outbox as pending: let the outbox be the judge
-            log.warning("measurement %s had no pending outbox row", m.id)
-            return False
-        await client.publish(self.topics.measurement_last, _json(m), qos=1, retain=True)
-        return True
 
     # ------------------------------------------------------------------ state from the bus
 
@@ -412,13 +358,7 @@ class MqttLink:
         """Fold one bus event into the state to publish (synchronous, never blocks)."""
         now = datetime.now(UTC)
         if isinstance(event, MeasurementCaptured):
-            # Published only after the commit. Kept for the fast path only while connected
-            # (the drain loop starts each session with an outbox read) and within a batch.
-            if self._connected.is_set() and len(self._fresh) < OUTBOX_BATCH:
-                self._fresh.append(event.measurement)
-            else:
-                self._reread = True
-            self._wake.set()
+            self.wake()
             return
         if isinstance(event, LiveReading):
             if self._connected.is_set() and event.station == self.station:

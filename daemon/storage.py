@@ -303,22 +303,6 @@ class Store:
             ],
         )
 
-    def mark_sent_measurement(self, measurement_id: str) -> bool:
-        """Record that the broker acknowledged the measurement (call only after PUBACK).
-
-        For a measurement published straight from the bus rather than read from the outbox.
-
-        Returns:
-            True if a pending outbox row was marked, False if none was pending.
-        """
-        with self._lock, self._op(f"mark measurement {measurement_id} sent"):
-            with self._transaction():
-                cur = self._conn.execute(
-                    "UPDATE outbox SET sent_utc = ? WHERE measurement_id = ? AND sent_utc IS NULL",
-                    (utc_text(datetime.now(UTC)), measurement_id),
-                )
-            return cur.rowcount > 0
-
     def measurements(
         self,
         since: datetime | None = None,
