@@ -9,6 +9,8 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
+from tests.processes import stop_processes
+
 
 def find_mosquitto() -> str:
     candidates = (shutil.which("mosquitto"), "/usr/sbin/mosquitto", "/usr/local/sbin/mosquitto")
@@ -76,11 +78,5 @@ class Broker:
             return
         if kill:
             self.process.kill()
-        else:
-            self.process.terminate()
-        try:
-            self.process.wait(timeout=5)
-        except subprocess.TimeoutExpired:
-            self.process.kill()
-            self.process.wait()
+        stop_processes([self.process], timeout_s=5)
         self.process = None

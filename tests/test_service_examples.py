@@ -24,6 +24,7 @@ from daemon.config import load_config
 from daemon.measurement import Verdict
 from daemon.physics.swingweight import points_from_moment_g_in
 from daemon.storage import Store
+from tests.processes import stop_processes
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))
@@ -49,14 +50,7 @@ def header_commands(example: Path) -> list[list[str]]:
 def processes() -> Iterator[list[subprocess.Popen[bytes]]]:
     started: list[subprocess.Popen[bytes]] = []
     yield started
-    for proc in started:
-        proc.terminate()
-    for proc in started:
-        try:
-            proc.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
+    stop_processes(started, timeout_s=20)
 
 
 def test_the_simulated_club_is_inside_the_spec() -> None:

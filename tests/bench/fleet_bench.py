@@ -43,6 +43,7 @@ from tests.bench.rig import (
     unique_root,
     wait_for,
 )
+from tests.processes import stop_processes
 
 PERIOD_S = 6.0
 ON_S = 4.0
@@ -122,14 +123,7 @@ async def run(args: argparse.Namespace) -> int:
                 await wait_for(lambda: {m.json()["id"] for m in listener.on("/measurement")}
                                >= stored, 30, "the last deliveries", poll_s=0.5)
         finally:
-            for p in hosts:
-                p.terminate()
-            for p in hosts:
-                try:
-                    p.wait(timeout=30)
-                except subprocess.TimeoutExpired:
-                    p.kill()
-                    p.wait()
+            stop_processes(hosts, timeout_s=30)
             broker.stop()
         received = [m.json() for m in listener.on("/measurement")]
         ids = [m["id"] for m in received]

@@ -37,6 +37,7 @@ from drivers.sim.devices import Frame, make_device
 from drivers.sim.physics import BenchTimeline, Club, Placement, cycle_placements, make_geometry
 from drivers.sim.pty_server import PtyDevice
 from tests.mqtt_broker import Broker, find_mosquitto, free_port
+from tests.processes import stop_processes
 
 REPO = Path(__file__).resolve().parents[2]
 # Invented demo club (Larkspur Clubworks 7-iron): 415 g, balance point 28.85 in.
@@ -169,13 +170,7 @@ class HeftRun:
         """SIGTERM (an orderly stop), then SIGKILL if it does not end in time."""
         if self.proc is None:
             return None
-        if self.proc.poll() is None:
-            self.proc.terminate()
-            try:
-                self.proc.wait(timeout=timeout_s)
-            except subprocess.TimeoutExpired:
-                self.proc.kill()
-                self.proc.wait(timeout=10)
+        stop_processes([self.proc], timeout_s)
         return self.proc.returncode
 
 
