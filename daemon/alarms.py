@@ -13,7 +13,7 @@ from collections.abc import Callable
 from dataclasses import replace
 from datetime import datetime
 
-from daemon.events import Alarm, AlarmKind
+from heft.daemon.events import Alarm, AlarmKind
 
 
 class UnknownAlarmError(KeyError):

@@ -21,10 +21,10 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import date, datetime, timedelta
 
-from daemon.config import ChannelConfig
-from daemon.events import AlarmKind
-from daemon.records import CalibrationRecord, ReferenceMass
-from drivers.reading import DeviceInfo
+from heft.daemon.config import ChannelConfig
+from heft.daemon.events import AlarmKind
+from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.drivers.reading import DeviceInfo
 
 CONFIG_ID_PREFIX = "config:"
 MIN_WINDOW_SAMPLES = 5

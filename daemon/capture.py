@@ -40,9 +40,9 @@ from dataclasses import dataclass
 from functools import lru_cache
 from statistics import NormalDist, median
 
-from daemon.capture_params import CaptureParams
-from daemon.events import CaptureState
-from drivers.reading import Flag
+from heft.daemon.capture_params import CaptureParams
+from heft.daemon.events import CaptureState
+from heft.drivers.reading import Flag
 
 _UNUSABLE = Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT
 _MAX_CANDIDATES = 24  # window lengths tried per sample: bounds the cost at high sample rates

@@ -37,10 +37,10 @@ from pydantic import (
     model_validator,
 )
 
-from daemon.capture_params import CaptureParams
-from daemon.mqtt_settings import MqttSettings
-from daemon.physics.swingweight import points_from_label
-from daemon.units import UnitError, parse_quantity
+from heft.daemon.capture_params import CaptureParams
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.physics.swingweight import points_from_label
+from heft.drivers.units import UnitError, parse_quantity
 
 NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
 CHANNEL_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*/[0-9]+$"
@@ -522,9 +522,9 @@ def format_validation_error(err: ValidationError) -> str:
 
 def check_drivers(config: StationConfig) -> None:
     """Each device's driver exists and accepts its options (the driver's own model says how)."""
-    from drivers.base import DriverConfigError
-    from drivers.registry import get_driver_class
-    from drivers.transport import USB_HID_SCHEME, SerialSettings
+    from heft.drivers.base import DriverConfigError
+    from heft.drivers.registry import get_driver_class
+    from heft.drivers.transport import USB_HID_SCHEME, SerialSettings
 
     for i, device in enumerate(config.devices):
         if not device.address.startswith(USB_HID_SCHEME):

@@ -13,8 +13,8 @@ from collections.abc import AsyncIterator
 from dataclasses import dataclass, field
 from datetime import datetime
 
-from daemon.measurement import Measurement
-from drivers.reading import Flag
+from heft.daemon.measurement import Measurement
+from heft.drivers.reading import Flag
 
 
 class CaptureState(enum.StrEnum):

@@ -11,7 +11,7 @@ import csv
 from collections.abc import Callable, Iterable
 from typing import Any, Final, TextIO
 
-from daemon.measurement import Measurement
+from heft.daemon.measurement import Measurement
 
 LIST_SEPARATOR: Final = ";"
 # Text that a spreadsheet would run as a formula if a cell starts with it (CSV injection,

@@ -35,8 +35,8 @@ from paho.mqtt.properties import Properties
 from pydantic import BaseModel
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential_jitter
 
-from daemon.command_api import Command, Reply, parse_command
-from daemon.events import (
+from heft.daemon.command_api import Command, Reply, parse_command
+from heft.daemon.events import (
     Alarm,
     AlarmChanged,
     CaptureStateChanged,
@@ -47,8 +47,8 @@ from daemon.events import (
     MeasurementCaptured,
     Subscription,
 )
-from daemon.mqtt_settings import MqttSettings
-from daemon.mqtt_topics import (
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.mqtt_topics import (
     OFFLINE,
     ONLINE,
     AlarmPayload,
@@ -60,8 +60,8 @@ from daemon.mqtt_topics import (
     Topics,
     ha_discovery,
 )
-from daemon.storage import StorageError, Store
-from daemon.version import __version__
+from heft.daemon.storage import StorageError, Store
+from heft.daemon.version import __version__
 
 log = logging.getLogger(__name__)
 

@@ -31,7 +31,7 @@ from typing import Final, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from daemon.events import (
+from heft.daemon.events import (
     Alarm,
     AlarmKind,
     CaptureState,
@@ -39,7 +39,7 @@ from daemon.events import (
     DeviceStatus,
     LiveReading,
 )
-from drivers.reading import Flag
+from heft.drivers.reading import Flag
 
 ONLINE: Final = "online"
 OFFLINE: Final = "offline"
@@ -169,7 +169,7 @@ class TopicSpec:
     qos: int
     retain: bool
     direction: Literal["out", "in"]  # out: the station publishes; in: the station subscribes
-    payload: str  # a key of ``daemon.commands.schema.PAYLOADS``
+    payload: str  # a key of ``heft.tui.commands.schema.PAYLOADS``
     summary: str
 
 

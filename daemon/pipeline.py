@@ -32,18 +32,18 @@ from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 
-from daemon.alarms import AlarmManager
-from daemon.calibration import config_record, counts_to_g, usable
-from daemon.capture import Captured, CaptureEngine, StateChanged, WindowStats
-from daemon.capture import Warning as CaptureWarning
-from daemon.config import (
+from heft.daemon.alarms import AlarmManager
+from heft.daemon.calibration import config_record, counts_to_g, usable
+from heft.daemon.capture import Captured, CaptureEngine, StateChanged, WindowStats
+from heft.daemon.capture import Warning as CaptureWarning
+from heft.daemon.config import (
     LeverBeamGeometry,
     SingleScaleGeometry,
     SpecConfig,
     StationConfig,
     TwoSupportGeometry,
 )
-from daemon.events import (
+from heft.daemon.events import (
     AlarmChanged,
     AlarmKind,
     CaptureState,
@@ -52,21 +52,21 @@ from daemon.events import (
     LiveReading,
     MeasurementCaptured,
 )
-from daemon.measurement import ChannelWindow, Measurement, Verdict
-from daemon.physics.club import (
+from heft.daemon.measurement import ChannelWindow, Measurement, Verdict
+from heft.daemon.physics.club import (
     ClubNumbers,
     club_from_lever,
     club_from_two_supports,
     club_from_weight_and_balance,
 )
-from daemon.physics.statics import StaticsError
-from daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
-from daemon.records import CalibrationRecord
-from daemon.specs import judge
-from daemon.stillness import motion
-from daemon.units import UnitError, parse_quantity
-from daemon.version import __version__
-from drivers.reading import ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
+from heft.daemon.physics.statics import StaticsError
+from heft.daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
+from heft.daemon.records import CalibrationRecord
+from heft.daemon.specs import judge
+from heft.daemon.stillness import motion
+from heft.daemon.version import __version__
+from heft.drivers.reading import ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
+from heft.drivers.units import UnitError, parse_quantity
 
 log = logging.getLogger("heft.pipeline")
 
@@ -559,7 +559,7 @@ class BenchPipeline:
     # ----------------------------------------------------------------------- plumbing
 
     def _on_alarm(self, alarm: object) -> None:
-        from daemon.events import Alarm
+        from heft.daemon.events import Alarm
 
         assert isinstance(alarm, Alarm)
         self._out.append(AlarmChanged(alarm))

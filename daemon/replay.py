@@ -16,14 +16,14 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta
 from pathlib import Path
 
-from daemon.config import StationConfig
-from daemon.events import Event, MeasurementCaptured
-from daemon.measurement import Measurement
-from daemon.pipeline import BenchPipeline
-from daemon.records import CalibrationRecord
-from drivers.base import Driver
-from drivers.recording import Recording, read_recording
-from drivers.registry import create_driver
+from heft.daemon.config import StationConfig
+from heft.daemon.events import Event, MeasurementCaptured
+from heft.daemon.measurement import Measurement
+from heft.daemon.pipeline import BenchPipeline
+from heft.daemon.records import CalibrationRecord
+from heft.drivers.base import Driver
+from heft.drivers.recording import Recording, read_recording
+from heft.drivers.registry import create_driver
 
 # After the last chunk, advance virtual time this far so pending timeouts fire.
 TAIL_S = 10.0

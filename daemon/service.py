@@ -31,9 +31,9 @@ from typing import Any
 
 from tenacity import AsyncRetrying, retry_if_exception_type, wait_exponential
 
-from daemon import command_api as api
-from daemon.alarms import UnknownAlarmError
-from daemon.calibration import (
+from heft.daemon import command_api as api
+from heft.daemon.alarms import UnknownAlarmError
+from heft.daemon.calibration import (
     CalibrationError,
     CountsWindow,
     active_record,
@@ -45,8 +45,8 @@ from daemon.calibration import (
     verify_record,
     zero_record,
 )
-from daemon.config import DeviceConfig, StationConfig
-from daemon.events import (
+from heft.daemon.config import DeviceConfig, StationConfig
+from heft.daemon.events import (
     Alarm,
     AlarmChanged,
     AlarmKind,
@@ -55,18 +55,18 @@ from daemon.events import (
     EventBus,
     MeasurementCaptured,
 )
-from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink
-from daemon.pipeline import BenchPipeline, SelectionError
-from daemon.records import CalibrationRecord, ReferenceMass
-from daemon.sd_notify import notify, watchdog_interval_s
-from daemon.storage import StorageError, Store
-from drivers.base import DriverError, TransportError, UnsupportedCommand
-from drivers.reading import DeviceInfo, Reading
-from drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
-from drivers.registry import create_driver
-from drivers.session import DeviceSession
-from drivers.transport import Transport, open_transport
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.pipeline import BenchPipeline, SelectionError
+from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.daemon.sd_notify import notify, watchdog_interval_s
+from heft.daemon.storage import StorageError, Store
+from heft.drivers.base import DriverError, TransportError, UnsupportedCommand
+from heft.drivers.reading import DeviceInfo, Reading
+from heft.drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
+from heft.drivers.registry import create_driver
+from heft.drivers.session import DeviceSession
+from heft.drivers.transport import Transport, open_transport
 
 log = logging.getLogger("heft.service")
 

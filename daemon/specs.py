@@ -9,9 +9,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from daemon.config import ClubTarget, LengthRange, MassRange, SpecConfig
-from daemon.measurement import CheckResult, Verdict
-from daemon.physics.swingweight import describe_points, points_from_label
+from heft.daemon.config import ClubTarget, LengthRange, MassRange, SpecConfig
+from heft.daemon.measurement import CheckResult, Verdict
+from heft.daemon.physics.swingweight import describe_points, points_from_label
 
 _ORDER = {Verdict.NO_SPEC: 0, Verdict.PASS: 1, Verdict.NEAR_LIMIT: 2, Verdict.FAIL: 3}
 

@@ -31,9 +31,9 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, Final
 
-from daemon.events import Alarm, AlarmKind
-from daemon.measurement import Measurement, Verdict
-from daemon.records import CalibrationRecord
+from heft.daemon.events import Alarm, AlarmKind
+from heft.daemon.measurement import Measurement, Verdict
+from heft.daemon.records import CalibrationRecord
 
 
 class StorageError(Exception):

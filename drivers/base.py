@@ -33,8 +33,8 @@ from typing import Any, ClassVar, Final
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from daemon import units
-from drivers.reading import DriverOutput, Flag, Reading, ValueKind
+from heft.drivers import units
+from heft.drivers.reading import DriverOutput, Flag, Reading, ValueKind
 
 log = logging.getLogger("heft.drivers")
 

@@ -46,8 +46,8 @@ from pydantic import (
     model_validator,
 )
 
-from daemon import units
-from drivers.protocols.hid_pos import (
+from heft.drivers import units
+from heft.drivers.protocols.hid_pos import (
     CONTROL_REPORT_ID,
     STATUS_NAMES,
     ScaleStatus,

@@ -38,7 +38,7 @@ class Reading:
     """One value from one channel of one device.
 
     ``value`` is already normalised to grams when ``kind`` is GRAMS (the driver converts oz, lb,
-    kg ... through ``daemon.units``); ``device_unit`` keeps what the device actually sent.
+    kg ... through ``heft.drivers.units``); ``device_unit`` keeps what the device actually sent.
     ``t_mono_s`` is the host's monotonic clock on arrival (or the recording's clock in replay).
     """
 

@@ -33,9 +33,9 @@ from typing import Any, Final, Literal, Self, TextIO
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from drivers.base import Driver, TransportError
-from drivers.reading import DriverOutput
-from drivers.transport import Transport
+from heft.drivers.base import Driver, TransportError
+from heft.drivers.reading import DriverOutput
+from heft.drivers.transport import Transport
 
 FORMAT_NAME: Final = "heft-recording"
 FORMAT_VERSION: Final = 1

@@ -12,17 +12,17 @@ import importlib.metadata
 from collections.abc import Mapping
 from typing import Any, Final
 
-from drivers.base import Driver, DriverConfigError, UnknownDriverError
+from heft.drivers.base import Driver, DriverConfigError, UnknownDriverError
 
 ENTRY_POINT_GROUP: Final = "heft.drivers"
 
 DRIVERS: Final[dict[str, str]] = {
-    "poll_balance": "drivers.protocols.poll_balance:PollBalanceDriver",
-    "stream_balance": "drivers.protocols.stream_balance:StreamBalanceDriver",
-    "regex_line": "drivers.protocols.regex_line:RegexLineDriver",
-    "hid_pos": "drivers.protocols.hid_pos:HidPosDriver",
-    "beam": "drivers.protocols.beam:BeamDriver",
-    "scanner": "drivers.protocols.scanner:ScannerDriver",
+    "poll_balance": "heft.drivers.protocols.poll_balance:PollBalanceDriver",
+    "stream_balance": "heft.drivers.protocols.stream_balance:StreamBalanceDriver",
+    "regex_line": "heft.drivers.protocols.regex_line:RegexLineDriver",
+    "hid_pos": "heft.drivers.protocols.hid_pos:HidPosDriver",
+    "beam": "heft.drivers.protocols.beam:BeamDriver",
+    "scanner": "heft.drivers.protocols.scanner:ScannerDriver",
 }
 
 

@@ -16,9 +16,9 @@ import time
 from collections import deque
 from collections.abc import AsyncIterator, Callable
 
-from drivers.base import CommandReply, DeviceSilentError, Driver, TransportError
-from drivers.reading import DriverOutput
-from drivers.transport import Transport
+from heft.drivers.base import CommandReply, DeviceSilentError, Driver, TransportError
+from heft.drivers.reading import DriverOutput
+from heft.drivers.transport import Transport
 
 log = logging.getLogger("heft.session")
 

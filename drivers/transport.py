@@ -25,7 +25,7 @@ from typing import Any, Literal, Protocol, runtime_checkable
 import serial
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
-from drivers.base import DriverConfigError, TransportError, describe_options_error
+from heft.drivers.base import DriverConfigError, TransportError, describe_options_error
 
 __all__ = [
     "SerialSettings",
@@ -220,7 +220,7 @@ def open_transport(port: str, options: Mapping[str, Any] | None = None) -> Trans
     opts = dict(options or {})
     if port.startswith(USB_HID_SCHEME):
         try:
-            usb = importlib.import_module("drivers.usb_transport")
+            usb = importlib.import_module("heft.drivers.usb_transport")
         except ImportError as err:
             raise DriverConfigError(
                 f"port {port!r}: USB HID support is unavailable: {err}") from err

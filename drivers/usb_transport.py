@@ -36,7 +36,7 @@ import usb.core
 import usb.util
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from drivers.base import DriverConfigError, TransportError
+from heft.drivers.base import DriverConfigError, TransportError
 
 __all__ = [
     "SCALES_USAGE_PAGE",

@@ -27,7 +27,7 @@ sys.path.insert(0, str(ROOT.parent / "drivers" / "firmware" / "heft_beam"))
 
 import framing  # noqa: E402  (the reference firmware's own framing: fixtures match the board)
 
-from drivers.recording import Chunk, RecordingHeader, write_recording  # noqa: E402
+from heft.drivers.recording import Chunk, RecordingHeader, write_recording  # noqa: E402
 
 CREATED = datetime(2026, 5, 4, 8, 30, tzinfo=UTC)
 Event = tuple[float, str, bytes]  # (t seconds, 'rx' | 'tx', bytes)

@@ -5,11 +5,15 @@ from __future__ import annotations
 import uuid
 from datetime import UTC, datetime, timedelta
 
-from daemon.events import Alarm, AlarmKind
-from daemon.measurement import CheckResult, Measurement, Verdict
-from daemon.physics.swingweight import label_from_points, moment_about_g_in, points_from_moment_g_in
-from daemon.records import CalibrationRecord, ReferenceMass
-from daemon.units import g_in_to_oz_in
+from heft.daemon.events import Alarm, AlarmKind
+from heft.daemon.measurement import CheckResult, Measurement, Verdict
+from heft.daemon.physics.swingweight import (
+    label_from_points,
+    moment_about_g_in,
+    points_from_moment_g_in,
+)
+from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.drivers.units import g_in_to_oz_in
 
 T0 = datetime(2026, 11, 30, 8, 0, tzinfo=UTC)
 

@@ -1,8 +1,8 @@
 """Helpers for the service tests: station configs and simulated benches (invented demo data).
 
 The clubs belong to the invented maker Larkspur Clubworks. A two-support beam device from the
-simulator (``hardware_fixtures/sim/beam.json``: supports at 4 and 36 in, 80 samples/s) is either
-run in pure code (bytes straight into a driver) or served on a real pty.
+simulator (``drivers/sim/definition_files/beam.json``: supports at 4 and 36 in, 80 samples/s)
+is either run in pure code (bytes straight into a driver) or served on a real pty.
 """
 
 from __future__ import annotations
@@ -13,12 +13,12 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
-from daemon.config import StationConfig, parse_config
-from daemon.physics.swingweight import points_from_moment_g_in
-from drivers.recording import RecordingHeader, RecordingWriter
-from drivers.sim.definitions import BeamDef, builtin_definition
-from drivers.sim.devices import SimDevice, make_device
-from drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
+from heft.daemon.config import StationConfig, parse_config
+from heft.daemon.physics.swingweight import points_from_moment_g_in
+from heft.drivers.recording import RecordingHeader, RecordingWriter
+from heft.drivers.sim.definitions import BeamDef, builtin_definition
+from heft.drivers.sim.devices import SimDevice, make_device
+from heft.drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
 
 # Three irons of a Larkspur set (invented). D2 is M14 = 6151.8 g*in (domain.md table): the
 # 7-iron reads about D2.2 and the 8-iron D2.0 (in a D2 +/- 0.5 spec), the 6-iron about D3.7 (out).

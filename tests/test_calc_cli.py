@@ -12,8 +12,8 @@ from typing import Any, cast
 
 import pytest
 
-from daemon.cli import main
-from daemon.commands import calc
+from heft.tui.cli import main
+from heft.tui.commands import calc
 
 BASE_KEYS = {
     "total_weight_g",
@@ -330,9 +330,9 @@ def test_bad_parts_file_names_the_key(capsys: pytest.CaptureFixture[str], tmp_pa
 
 
 def test_installed_command_end_to_end() -> None:
-    """Through ``python -m daemon`` as a user would run it, JSON on stdout."""
+    """Through ``python -m heft.tui.cli``, the same entry point as the installed script, JSON on stdout."""
     done = subprocess.run(
-        [sys.executable, "-m", "daemon", "calc", "--weight", "412g", "--balance-point", "29.1in",
+        [sys.executable, "-m", "heft.tui.cli", "calc", "--weight", "412g", "--balance-point", "29.1in",
          "--target", "D2", "--at", "36.5", "--json"],
         capture_output=True, text=True, timeout=60, check=False,
     )  # fmt: skip
@@ -340,7 +340,7 @@ def test_installed_command_end_to_end() -> None:
     doc = json.loads(done.stdout)
     assert set(doc) >= BASE_KEYS | TARGET_KEYS
     bad = subprocess.run(
-        [sys.executable, "-m", "daemon", "calc", "--weight", "lots", "--balance-point", "29"],
+        [sys.executable, "-m", "heft.tui.cli", "calc", "--weight", "lots", "--balance-point", "29"],
         capture_output=True, text=True, timeout=60, check=False,
     )  # fmt: skip
     assert bad.returncode == 2

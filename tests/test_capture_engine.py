@@ -14,7 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.capture import (
+from heft.daemon.capture import (
     Captured,
     CaptureEngine,
     CaptureOutput,
@@ -23,9 +23,9 @@ from daemon.capture import (
     ZeroTracked,
     chi2_quantile_ratio,
 )
-from daemon.capture_params import CaptureParams
-from daemon.events import CaptureState
-from drivers.reading import Flag
+from heft.daemon.capture_params import CaptureParams
+from heft.daemon.events import CaptureState
+from heft.drivers.reading import Flag
 
 Signal = Callable[[float], float]
 D_G = 0.1  # display step of the HX711 presets

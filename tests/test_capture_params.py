@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 from pydantic import ValidationError
 
-from daemon.capture_params import CaptureParams
+from heft.daemon.capture_params import CaptureParams
 
 
 def test_defaults_follow_the_weighing_rules() -> None:

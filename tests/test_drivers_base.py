@@ -9,11 +9,11 @@ from typing import ClassVar
 
 import pytest
 
-from drivers.base import FrameError, LineDriver, parse_decimal, parse_int
-from drivers.reading import DriverOutput, Flag
-from drivers.recording import ReplayTransport, read_recording
-from drivers.registry import create_driver
-from drivers.session import DeviceSession
+from heft.drivers.base import FrameError, LineDriver, parse_decimal, parse_int
+from heft.drivers.reading import DriverOutput, Flag
+from heft.drivers.recording import ReplayTransport, read_recording
+from heft.drivers.registry import create_driver
+from heft.drivers.session import DeviceSession
 from tests.test_drivers_serial import wait_for
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"

@@ -10,11 +10,11 @@ from pathlib import Path
 import pytest
 from serial.tools.list_ports_common import ListPortInfo
 
-from daemon.cli import main
-from daemon.commands import devices
-from daemon.config import DeviceConfig
-from drivers.fake_usb import FakeBackend, FakeUsbDevice, scale_device_definition
-from drivers.registry import get_driver_class
+from heft.daemon.config import DeviceConfig
+from heft.drivers.fake_usb import FakeBackend, FakeUsbDevice, scale_device_definition
+from heft.drivers.registry import get_driver_class
+from heft.tui.cli import main
+from heft.tui.commands import devices
 
 
 def port_info(device: str, vid: int | None = None, pid: int | None = None,

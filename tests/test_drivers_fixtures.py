@@ -13,11 +13,11 @@ from pathlib import Path
 
 import pytest
 
-from drivers.base import CommandReply, Driver
-from drivers.protocols.beam import BeamDriver
-from drivers.reading import ClubTag, DeviceInfo, DriverOutput, Flag, Reading, ValueKind
-from drivers.recording import read_recording, replay_outputs
-from drivers.registry import create_driver
+from heft.drivers.base import CommandReply, Driver
+from heft.drivers.protocols.beam import BeamDriver
+from heft.drivers.reading import ClubTag, DeviceInfo, DriverOutput, Flag, Reading, ValueKind
+from heft.drivers.recording import read_recording, replay_outputs
+from heft.drivers.registry import create_driver
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"
 OZ_G = 28.349523125  # exact, 1959 agreement

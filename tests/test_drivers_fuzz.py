@@ -14,13 +14,13 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from drivers.base import Driver
-from drivers.firmware.heft_beam import framing  # the board's own framing (runs on CPython)
-from drivers.protocols.beam import BeamDriver
-from drivers.protocols.beam import checksum as beam_checksum
-from drivers.reading import DriverOutput, Reading
-from drivers.recording import read_recording
-from drivers.registry import create_driver
+from heft.drivers.base import Driver
+from heft.drivers.firmware.heft_beam import framing  # the board's own framing (runs on CPython)
+from heft.drivers.protocols.beam import BeamDriver
+from heft.drivers.protocols.beam import checksum as beam_checksum
+from heft.drivers.reading import DriverOutput, Reading
+from heft.drivers.recording import read_recording
+from heft.drivers.registry import create_driver
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"
 

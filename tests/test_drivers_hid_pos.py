@@ -27,8 +27,8 @@ import usb.util
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from drivers.base import DriverConfigError, TransportError, UnsupportedCommand
-from drivers.fake_usb import (
+from heft.drivers.base import DriverConfigError, TransportError, UnsupportedCommand
+from heft.drivers.fake_usb import (
     SCALE_REPORT_DESCRIPTOR,
     FakeBackend,
     FakeUsbDevice,
@@ -39,12 +39,12 @@ from drivers.fake_usb import (
     load_sequence,
     scale_device_definition,
 )
-from drivers.protocols.hid_pos import UNIT_CODES, HidPosDriver
-from drivers.reading import Flag, Reading
-from drivers.registry import create_driver
-from drivers.session import DeviceSession
-from drivers.transport import open_transport
-from drivers.usb_transport import (
+from heft.drivers.protocols.hid_pos import UNIT_CODES, HidPosDriver
+from heft.drivers.reading import Flag, Reading
+from heft.drivers.registry import create_driver
+from heft.drivers.session import DeviceSession
+from heft.drivers.transport import open_transport
+from heft.drivers.usb_transport import (
     UsbHidTransport,
     list_hid_scales,
     parse_usb_hid_url,
@@ -544,7 +544,7 @@ async def test_a_hid_session_records_and_replays_in_the_heft_recording_format(
     tmp_path: Path,
 ) -> None:
     # One interrupt transfer = one chunk, so a replay feeds the driver the same whole reports.
-    from drivers.recording import (
+    from heft.drivers.recording import (
         RecordingHeader,
         RecordingTransport,
         RecordingWriter,

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import pytest
 
-from drivers.base import DriverConfigError, UnknownDriverError, UnsupportedCommand
-from drivers.registry import DRIVERS, available_drivers, create_driver, get_driver_class
+from heft.drivers.base import DriverConfigError, UnknownDriverError, UnsupportedCommand
+from heft.drivers.registry import DRIVERS, available_drivers, create_driver, get_driver_class
 
 
 def test_unknown_driver_lists_valid_names() -> None:
@@ -93,8 +93,8 @@ def test_unknown_command_lists_the_known_ones() -> None:
 def test_entry_point_plugin_is_found(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     """An installed distribution declaring group heft.drivers adds a driver by name."""
     (tmp_path / "larkspur_gram_driver.py").write_text(textwrap.dedent('''
-        from drivers.base import LineDriver
-        from drivers.reading import Flag
+        from heft.drivers.base import LineDriver
+        from heft.drivers.reading import Flag
 
         class GramLine(LineDriver):
             name = "larkspur_gram"

@@ -17,12 +17,12 @@ from pathlib import Path
 
 import pytest
 
-from drivers.base import CommandReply, DeviceSilentError, TransportError
-from drivers.reading import DeviceInfo, DriverOutput, Reading
-from drivers.recording import Recording, read_recording, replay_outputs
-from drivers.registry import create_driver
-from drivers.session import DeviceSession
-from drivers.transport import SerialTransport, open_transport
+from heft.drivers.base import CommandReply, DeviceSilentError, TransportError
+from heft.drivers.reading import DeviceInfo, DriverOutput, Reading
+from heft.drivers.recording import Recording, read_recording, replay_outputs
+from heft.drivers.registry import create_driver
+from heft.drivers.session import DeviceSession
+from heft.drivers.transport import SerialTransport, open_transport
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"
 TIMEOUT_S = 15.0  # generous: the machine is shared and slow; tests normally take milliseconds
@@ -359,7 +359,7 @@ async def test_loop_url_through_serial_for_url() -> None:
 
 
 def test_bad_serial_option_names_the_option() -> None:
-    from drivers.base import DriverConfigError
+    from heft.drivers.base import DriverConfigError
 
     with pytest.raises(DriverConfigError, match="'parity'"):
         SerialTransport("/dev/ttyUSB0", parity="X")

@@ -15,11 +15,11 @@ from pathlib import Path
 
 import pytest
 
-from daemon.commands import export as export_cmd
-from daemon.config_example import example_toml
-from daemon.export import CSV_COLUMNS
-from daemon.measurement import Measurement, Verdict
-from daemon.storage import Store
+from heft.daemon.config_example import example_toml
+from heft.daemon.export import CSV_COLUMNS
+from heft.daemon.measurement import Measurement, Verdict
+from heft.daemon.storage import Store
+from heft.tui.commands import export as export_cmd
 from tests.sample_records import T0, make_measurement
 
 
@@ -223,7 +223,7 @@ def test_a_reader_closing_the_pipe_is_a_quiet_end(db: tuple[Path, list[Measureme
     # QA: `heft export ... | head` printed "--output: cannot write None: Broken pipe".
     path, _ = db
     proc = subprocess.Popen(
-        [sys.executable, "-m", "daemon", "export", "--db", str(path)],
+        [sys.executable, "-m", "heft.tui.cli", "export", "--db", str(path)],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE,
     )
     assert proc.stdout is not None and proc.stderr is not None

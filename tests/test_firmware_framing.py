@@ -19,10 +19,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from drivers.firmware.heft_beam import framing
-from drivers.protocols import beam as host
-from drivers.protocols.beam import BeamDriver
-from drivers.reading import DeviceInfo, Flag, Reading, ValueKind
+from heft.drivers.firmware.heft_beam import framing
+from heft.drivers.protocols import beam as host
+from heft.drivers.protocols.beam import BeamDriver
+from heft.drivers.reading import DeviceInfo, Flag, Reading, ValueKind
 
 FIRMWARE = Path(__file__).resolve().parent.parent / "drivers" / "firmware" / "heft_beam"
 

@@ -9,7 +9,7 @@ import signal
 import sys
 from pathlib import Path
 
-from daemon.storage import Store
+from heft.daemon.storage import Store
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import collecting, settings_for, wait_until
 
@@ -19,10 +19,10 @@ ROOT = Path(__file__).resolve().parents[1]
 # captures as fast as it can store them (at most 200, so it ends by itself if never killed).
 STATION = """
 import asyncio, sys
-from daemon.events import EventBus, MeasurementCaptured
-from daemon.mqtt_link import MqttLink
-from daemon.mqtt_settings import MqttSettings
-from daemon.storage import Store
+from heft.daemon.events import EventBus, MeasurementCaptured
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.storage import Store
 from tests.sample_records import make_measurement
 
 async def main() -> None:

@@ -12,8 +12,8 @@ import pytest
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
-from daemon.command_api import Command, Reply
-from daemon.events import (
+from heft.daemon.command_api import Command, Reply
+from heft.daemon.events import (
     AlarmChanged,
     AlarmKind,
     CaptureState,
@@ -23,11 +23,11 @@ from daemon.events import (
     LiveReading,
     MeasurementCaptured,
 )
-from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink
-from daemon.mqtt_topics import AlarmPayload, AlarmsPayload, LiveReadingPayload
-from daemon.storage import Store
-from drivers.reading import Flag
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.mqtt_topics import AlarmPayload, AlarmsPayload, LiveReadingPayload
+from heft.daemon.storage import Store
+from heft.drivers.reading import Flag
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import (
     Collector,
@@ -328,7 +328,7 @@ async def test_home_assistant_discovery_sent_and_resent_on_ha_birth(
 def test_client_id_is_stable_and_per_station(tmp_path: Path) -> None:
     with Store(tmp_path / "ids.db") as store:
         bus = EventBus()
-        from daemon.mqtt_settings import MqttSettings
+        from heft.daemon.mqtt_settings import MqttSettings
 
         a = MqttLink(MqttSettings(), "bench-1", store, bus)
         b = MqttLink(MqttSettings(), "qc-1", store, bus)

@@ -10,9 +10,9 @@ from __future__ import annotations
 import socket
 from pathlib import Path
 
-from daemon.events import EventBus
-from daemon.mqtt_link import MqttLink
-from daemon.storage import Store
+from heft.daemon.events import EventBus
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.storage import Store
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import settings_for
 

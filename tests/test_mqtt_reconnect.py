@@ -12,10 +12,10 @@ import aiomqtt
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
-from daemon.events import EventBus, MeasurementCaptured
-from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink, cancel_until_done
-from daemon.storage import Store
+from heft.daemon.events import EventBus, MeasurementCaptured
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import MqttLink, cancel_until_done
+from heft.daemon.storage import Store
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import settings_for, stop_task, wait_until
 from tests.sample_records import make_measurement

@@ -10,10 +10,10 @@ from pathlib import Path
 import pytest
 from jsonschema import Draft202012Validator
 
-from daemon.command_api import Reply, Tare
-from daemon.commands import schema as schema_cmd
-from daemon.events import AlarmKind
-from daemon.mqtt_topics import TOPIC_SPECS, AlarmPayload, Topics
+from heft.daemon.command_api import Reply, Tare
+from heft.daemon.events import AlarmKind
+from heft.daemon.mqtt_topics import TOPIC_SPECS, AlarmPayload, Topics
+from heft.tui.commands import schema as schema_cmd
 from tests.sample_records import make_alarm, make_measurement
 
 DOC = Path(__file__).resolve().parents[1] / "docs" / "mqtt.md"

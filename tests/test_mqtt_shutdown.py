@@ -14,10 +14,15 @@ import sys
 import time
 from pathlib import Path
 
-from daemon.events import EventBus, LiveReading, MeasurementCaptured
-from daemon.mqtt_link import MqttLink, _first_error, cancel_until_done, raise_if_cancel_requested
-from daemon.storage import Store
-from drivers.reading import Flag
+from heft.daemon.events import EventBus, LiveReading, MeasurementCaptured
+from heft.daemon.mqtt_link import (
+    MqttLink,
+    _first_error,
+    cancel_until_done,
+    raise_if_cancel_requested,
+)
+from heft.daemon.storage import Store
+from heft.drivers.reading import Flag
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import collecting, settings_for, stop_task, wait_until
 from tests.sample_records import make_measurement

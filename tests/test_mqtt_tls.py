@@ -11,11 +11,11 @@ from pathlib import Path
 import aiomqtt
 import pytest
 
-from daemon.events import EventBus, MeasurementCaptured
-from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink
-from daemon.mqtt_settings import MqttSettings, TlsSettings
-from daemon.storage import Store
+from heft.daemon.events import EventBus, MeasurementCaptured
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
+from heft.daemon.storage import Store
 from tests.mqtt_broker import Broker, free_port
 from tests.mqtt_helpers import collecting, running, stop_task, unique_root, wait_until
 from tests.sample_records import make_measurement
@@ -141,7 +141,7 @@ async def test_wrong_password_is_retried_not_fatal(
     tls_broker: tuple[Broker, int, Path], tmp_path: Path, caplog: pytest.LogCaptureFixture
 ) -> None:
     _, port, ca = tls_broker
-    caplog.set_level(logging.WARNING, logger="daemon.mqtt_link")
+    caplog.set_level(logging.WARNING, logger="heft.daemon.mqtt_link")
     with Store(tmp_path / "bad.db") as store:
         link = MqttLink(
             _tls_settings(port, ca, "not-the-password"),

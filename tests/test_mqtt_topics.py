@@ -6,15 +6,15 @@ from datetime import UTC, datetime
 
 import pytest
 
-from daemon.events import (
+from heft.daemon.events import (
     AlarmKind,
     CaptureState,
     CaptureStateChanged,
     DeviceStatus,
     LiveReading,
 )
-from daemon.mqtt_link import LatestValueThrottle
-from daemon.mqtt_topics import (
+from heft.daemon.mqtt_link import LatestValueThrottle
+from heft.daemon.mqtt_topics import (
     AlarmPayload,
     CaptureStatePayload,
     DeviceStatusPayload,
@@ -27,7 +27,7 @@ from daemon.mqtt_topics import (
     ha_object_id,
     parse_topic,
 )
-from drivers.reading import Flag
+from heft.drivers.reading import Flag
 from tests.sample_records import make_alarm
 
 NOW = datetime(2026, 11, 30, 9, 30, tzinfo=UTC)

@@ -15,10 +15,10 @@ ROOT = Path(__file__).resolve().parents[1]
 
 STATION = """
 import asyncio, sys
-from daemon.events import EventBus
-from daemon.mqtt_link import MqttLink
-from daemon.mqtt_settings import MqttSettings
-from daemon.storage import Store
+from heft.daemon.events import EventBus
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.storage import Store
 
 async def main() -> None:
     settings = MqttSettings.model_validate_json(sys.argv[1])

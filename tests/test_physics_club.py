@@ -6,15 +6,15 @@ import dataclasses
 
 import pytest
 
-from daemon.measurement import Measurement
-from daemon.physics.club import (
+from heft.daemon.measurement import Measurement
+from heft.daemon.physics.club import (
     ClubNumbers,
     club_from_lever,
     club_from_two_supports,
     club_from_weight_and_balance,
 )
-from daemon.physics.statics import StaticsError
-from daemon.physics.uncertainty import UncertainValue as U
+from heft.daemon.physics.statics import StaticsError
+from heft.daemon.physics.uncertainty import UncertainValue as U
 
 FIELDS = [
     "total_weight_g", "total_weight_g_u", "balance_point_in", "balance_point_in_u",

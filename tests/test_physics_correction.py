@@ -6,20 +6,20 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.club import weight_and_balance_bench
-from daemon.physics.correction import (
+from heft.daemon.physics.club import weight_and_balance_bench
+from heft.daemon.physics.correction import (
     CorrectionError,
     correct_to_target,
     correction_mass_g,
     correction_numbers,
 )
-from daemon.physics.swingweight import (
+from heft.daemon.physics.swingweight import (
     SwingweightRangeError,
     moment_about_g_in,
     points_from_label,
     points_from_moment_g_in,
 )
-from daemon.physics.uncertainty import UncertainValue as U
+from heft.daemon.physics.uncertainty import UncertainValue as U
 
 
 def _points(w: float, bp: float) -> float:

@@ -8,15 +8,15 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.club import weight_and_balance_bench
-from daemon.physics.moi import (
+from heft.daemon.physics.club import weight_and_balance_bench
+from heft.daemon.physics.moi import (
     STANDARD_GRAVITY_M_S2,
     Pendulum,
     PendulumError,
     large_swing_factor,
     moi_about_butt_numbers,
 )
-from daemon.physics.uncertainty import UncertainValue as U
+from heft.daemon.physics.uncertainty import UncertainValue as U
 
 G_IN_S2 = STANDARD_GRAVITY_M_S2 / 0.0254  # 9.80665 m/s^2 exactly (3rd CGPM, 1901)
 

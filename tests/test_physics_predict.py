@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.predict import (
+from heft.daemon.physics.predict import (
     BuildError,
     ClubBuild,
     End,

@@ -6,14 +6,14 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.club import club_from_lever, club_from_two_supports
-from daemon.physics.statics import (
+from heft.daemon.physics.club import club_from_lever, club_from_two_supports
+from heft.daemon.physics.statics import (
     StaticsError,
     balance_point_from_moment_in,
     lever_statics,
     two_support_statics,
 )
-from daemon.physics.uncertainty import UncertainValue as U
+from heft.daemon.physics.uncertainty import UncertainValue as U
 
 # One point = 1.75 oz*in (trade tables: C0 = 196, C8 = 210 in*oz,
 # japanese.yujigolf.com/2012/01/blog-post_10.html); 1 oz = 28.349523125 g (exact, 1959).

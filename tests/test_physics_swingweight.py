@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.swingweight import (
+from heft.daemon.physics.swingweight import (
     ABOVE_RANGE_LABEL,
     BELOW_RANGE_LABEL,
     G_IN_PER_POINT,
@@ -28,7 +28,7 @@ from daemon.physics.swingweight import (
     points_from_moment_g_in,
     points_from_moment_oz_in,
 )
-from daemon.units import oz_in_to_g_in
+from heft.drivers.units import oz_in_to_g_in
 
 YUJI = "japanese.yujigolf.com/2012/01/blog-post_10.html"
 

@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from daemon.physics.uncertainty import (
+from heft.daemon.physics.uncertainty import (
     UncertainValue,
     any_uncertain,
     combine_u,

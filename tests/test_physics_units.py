@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from daemon import units
+from heft.drivers import units
 
 
 def test_exact_definitions() -> None:

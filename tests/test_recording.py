@@ -12,8 +12,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from drivers.reading import Reading
-from drivers.recording import (
+from heft.drivers.reading import Reading
+from heft.drivers.recording import (
     Chunk,
     RecordingError,
     RecordingHeader,
@@ -26,9 +26,9 @@ from drivers.recording import (
     replay_outputs,
     write_recording,
 )
-from drivers.registry import create_driver
-from drivers.session import DeviceSession
-from drivers.transport import SerialTransport
+from heft.drivers.registry import create_driver
+from heft.drivers.session import DeviceSession
+from heft.drivers.transport import SerialTransport
 from tests.test_drivers_serial import FIXTURES, PtyDevice, collect, essence
 
 chunks_st = st.lists(

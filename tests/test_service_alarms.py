@@ -6,8 +6,8 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from daemon.alarms import AlarmManager, UnknownAlarmError
-from daemon.events import Alarm, AlarmKind
+from heft.daemon.alarms import AlarmManager, UnknownAlarmError
+from heft.daemon.events import Alarm, AlarmKind
 
 
 def make() -> tuple[AlarmManager, list[Alarm], list[int]]:

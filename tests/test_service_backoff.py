@@ -15,9 +15,9 @@ from pathlib import Path
 
 import pytest
 
-from daemon.events import AlarmKind
-from daemon.service import RECONNECT_MAX_WAIT_S, Service
-from drivers.sim.pty_server import PtyDevice
+from heft.daemon.events import AlarmKind
+from heft.daemon.service import RECONNECT_MAX_WAIT_S, Service
+from heft.drivers.sim.pty_server import PtyDevice
 from tests.mqtt_helpers import wait_until
 from tests.service_bench import beam_device, station_config
 

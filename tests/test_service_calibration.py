@@ -6,7 +6,7 @@ from datetime import UTC, date, datetime
 
 import pytest
 
-from daemon.calibration import (
+from heft.daemon.calibration import (
     CalibrationError,
     CountsWindow,
     counts_to_g,
@@ -17,9 +17,9 @@ from daemon.calibration import (
     verify_record,
     zero_record,
 )
-from daemon.config import ChannelConfig
-from daemon.events import AlarmKind
-from daemon.records import ReferenceMass
+from heft.daemon.config import ChannelConfig
+from heft.daemon.events import AlarmKind
+from heft.daemon.records import ReferenceMass
 
 NOW = datetime(2026, 5, 4, 9, 0, tzinfo=UTC)
 TRUE_ZERO, TRUE_SPAN = 8453.0, 418.73  # counts, counts per gram (simulated cell)

@@ -1,7 +1,7 @@
 """A geometry channel the beam does not have is named when the beam says how many it has.
 
 The config check cannot know a beam's channel count (its HELLO line says it, docs/protocols.md);
-the simulated beam (hardware_fixtures/sim/beam.json) has two. Real pty, real pyserial.
+the simulated beam (drivers/sim/definition_files/beam.json) has two. Real pty, real pyserial.
 """
 
 from __future__ import annotations
@@ -14,9 +14,9 @@ from pathlib import Path
 
 import pytest
 
-from daemon.config import parse_config
-from daemon.service import Service
-from drivers.sim.pty_server import PtyDevice
+from heft.daemon.config import parse_config
+from heft.daemon.service import Service
+from heft.drivers.sim.pty_server import PtyDevice
 from tests.mqtt_helpers import wait_until
 from tests.service_bench import beam_device, station_toml
 

@@ -9,9 +9,9 @@ from pathlib import Path
 
 import pytest
 
-from daemon.cli import main
-from daemon.config import ConfigError, load_config, parse_config
-from daemon.config_example import example_toml
+from heft.daemon.config import ConfigError, load_config, parse_config
+from heft.daemon.config_example import example_toml
+from heft.tui.cli import main
 from tests.service_bench import station_toml
 
 GEOMETRIES = ("two_support", "lever_beam", "single_scale")
@@ -116,7 +116,7 @@ def test_heft_run_with_bad_config_exits_2_and_starts_nothing(tmp_path: Path) -> 
     )
     path.write_text(text)
     proc = subprocess.run(
-        [sys.executable, "-m", "daemon", "run", "--config", str(path)],
+        [sys.executable, "-m", "heft.tui.cli", "run", "--config", str(path)],
         capture_output=True, text=True, timeout=60,
     )
     assert proc.returncode == 2
@@ -154,17 +154,17 @@ def test_a_misspelt_top_level_key_is_named_with_every_problem(
 def test_config_check_reads_stdin() -> None:
     # `heft config example | heft config check -`
     example = subprocess.run(
-        [sys.executable, "-m", "daemon", "config", "example", "--geometry", "lever_beam"],
+        [sys.executable, "-m", "heft.tui.cli", "config", "example", "--geometry", "lever_beam"],
         capture_output=True, text=True, timeout=60, check=True,
     )
     checked = subprocess.run(
-        [sys.executable, "-m", "daemon", "config", "check", "-"],
+        [sys.executable, "-m", "heft.tui.cli", "config", "check", "-"],
         input=example.stdout, capture_output=True, text=True, timeout=60,
     )
     assert checked.returncode == 0, checked.stderr
     assert "geometry lever_beam" in checked.stdout
     bad = subprocess.run(
-        [sys.executable, "-m", "daemon", "config", "check", "-"],
+        [sys.executable, "-m", "heft.tui.cli", "config", "check", "-"],
         input=example.stdout.replace("lever_arm_in", "lever_arm_cm"),
         capture_output=True, text=True, timeout=60,
     )

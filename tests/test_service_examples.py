@@ -20,10 +20,10 @@ from pathlib import Path
 
 import pytest
 
-from daemon.config import load_config
-from daemon.measurement import Verdict
-from daemon.physics.swingweight import points_from_moment_g_in
-from daemon.storage import Store
+from heft.daemon.config import load_config
+from heft.daemon.measurement import Verdict
+from heft.daemon.physics.swingweight import points_from_moment_g_in
+from heft.daemon.storage import Store
 from tests.processes import stop_processes
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -78,7 +78,7 @@ def test_example_runs_as_its_header_says(
         if argv[1] == "run":
             argv[argv.index("--config") + 1] = str(config)
         processes.append(subprocess.Popen(
-            [sys.executable, "-m", "daemon", *argv[1:]], cwd=ROOT,
+            [sys.executable, "-m", "heft.tui.cli", *argv[1:]], cwd=ROOT,
             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE if argv[1] == "run" else None,
         ))
     run = processes[-1]

@@ -11,13 +11,13 @@ from pathlib import Path
 
 import pytest
 
-from daemon.config import load_config
-from daemon.measurement import Verdict
-from daemon.replay import replay
-from drivers.sim.definitions import BeamDef, ScannerDef, StreamBalanceDef, builtin_definition
-from drivers.sim.devices import SimDevice, make_device
-from drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
-from drivers.sim.scenario import larkspur_irons, record_devices, write_recordings
+from heft.daemon.config import load_config
+from heft.daemon.measurement import Verdict
+from heft.daemon.replay import replay
+from heft.drivers.sim.definitions import BeamDef, ScannerDef, StreamBalanceDef, builtin_definition
+from heft.drivers.sim.devices import SimDevice, make_device
+from heft.drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
+from heft.drivers.sim.scenario import larkspur_irons, record_devices, write_recordings
 from tests.service_bench import expected_points
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"

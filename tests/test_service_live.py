@@ -20,17 +20,17 @@ from pathlib import Path
 
 import pytest
 
-from daemon import command_api as api
-from daemon.config import parse_config
-from daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
-from daemon.measurement import Measurement, Verdict
-from daemon.mqtt_topics import Topics
-from daemon.records import CalibrationRecord
-from daemon.replay import replay
-from daemon.service import Service
-from daemon.storage import Store
-from drivers.sim.physics import Club, Placement
-from drivers.sim.pty_server import PtyDevice
+from heft.daemon import command_api as api
+from heft.daemon.config import parse_config
+from heft.daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
+from heft.daemon.measurement import Measurement, Verdict
+from heft.daemon.mqtt_topics import Topics
+from heft.daemon.records import CalibrationRecord
+from heft.daemon.replay import replay
+from heft.daemon.service import Service
+from heft.daemon.storage import Store
+from heft.drivers.sim.physics import Club, Placement
+from heft.drivers.sim.pty_server import PtyDevice
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import collecting, stop_task, wait_until
 from tests.service_bench import (
@@ -270,7 +270,7 @@ async def test_kill_9_during_a_burst_keeps_every_acknowledged_measurement(
     topic = Topics(root, "bench-1").measurement
     pty = PtyDevice(beam_device(plan), link=tmp_path / "beam").start()
     proc = await asyncio.create_subprocess_exec(
-        sys.executable, "-m", "daemon", "run", "--config", str(config), "--log-level", "warning",
+        sys.executable, "-m", "heft.tui.cli", "run", "--config", str(config), "--log-level", "warning",
         stdout=asyncio.subprocess.DEVNULL, stderr=asyncio.subprocess.PIPE,
     )
     try:
@@ -322,7 +322,7 @@ async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm
             weight_id="LCW-REF-200"))
         assert span.ok, span.message
         record = span.data["calibration"]
-        # The simulated cell has 418.73 counts per gram (hardware_fixtures/sim/beam.json).
+        # The simulated cell has 418.73 counts per gram (drivers/sim/definition_files/beam.json).
         assert record["counts_per_g"] == pytest.approx(418.73, rel=1e-3)
         assert record["reference"] == {"mass_g": 200.0, "weight_class": "M1",
                                        "weight_id": "LCW-REF-200"}
@@ -392,7 +392,7 @@ async def test_heft_run_stops_cleanly_on_sigterm(tmp_path: Path) -> None:
     config.write_text(station_toml(port=str(tmp_path / "beam"), db=tmp_path / "heft.db"))
     pty = PtyDevice(beam_device([]), link=tmp_path / "beam").start()
     proc = await asyncio.create_subprocess_exec(
-        sys.executable, "-m", "daemon", "run", "--config", str(config),
+        sys.executable, "-m", "heft.tui.cli", "run", "--config", str(config),
         stdout=asyncio.subprocess.DEVNULL, stderr=asyncio.subprocess.PIPE,
     )
     try:

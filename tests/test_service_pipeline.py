@@ -14,14 +14,14 @@ from pathlib import Path
 
 import pytest
 
-from daemon.cli import main
-from daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
-from daemon.measurement import Measurement, Verdict
-from daemon.pipeline import REPLAY_NAMESPACE, BenchPipeline, SelectionError
-from daemon.replay import replay
-from daemon.version import __version__
-from drivers.registry import create_driver
-from drivers.sim.physics import Placement
+from heft.daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
+from heft.daemon.measurement import Measurement, Verdict
+from heft.daemon.pipeline import REPLAY_NAMESPACE, BenchPipeline, SelectionError
+from heft.daemon.replay import replay
+from heft.daemon.version import __version__
+from heft.drivers.registry import create_driver
+from heft.drivers.sim.physics import Placement
+from heft.tui.cli import main
 from tests.service_bench import (
     LARKSPUR_CLUBS,
     beam_bytes,
@@ -191,7 +191,7 @@ def test_replay_refuses_a_recording_of_another_device(
 def test_a_small_load_left_on_the_empty_beam_raises_the_needs_zero_alarm() -> None:
     # 3 g (a lost ferrule, say) left over the butt support: too light to be a club, too far from
     # zero for zero tracking (0.5 d, OIML R 76-1 4.5.7) to follow, so the operator must zero.
-    from drivers.sim.physics import Club
+    from heft.drivers.sim.physics import Club
 
     _, events = run_pipeline([Placement(Club(3.0, 4.0), 2.0, 60.0)], 30.0)
     changes = [

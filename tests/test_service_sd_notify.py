@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from daemon.sd_notify import notify, watchdog_interval_s
+from heft.daemon.sd_notify import notify, watchdog_interval_s
 
 
 def test_notify_reaches_the_socket(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

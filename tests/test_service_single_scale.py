@@ -14,12 +14,12 @@ from pathlib import Path
 
 import pytest
 
-from daemon import command_api as api
-from daemon.config import StationConfig, load_config
-from daemon.events import Event, MeasurementCaptured
-from daemon.pipeline import BenchPipeline
-from daemon.service import Service
-from drivers.reading import ClubTag, Flag, Reading, ValueKind
+from heft.daemon import command_api as api
+from heft.daemon.config import StationConfig, load_config
+from heft.daemon.events import Event, MeasurementCaptured
+from heft.daemon.pipeline import BenchPipeline
+from heft.daemon.service import Service
+from heft.drivers.reading import ClubTag, Flag, Reading, ValueKind
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
 T0 = datetime(2026, 5, 4, 10, 0, tzinfo=UTC)

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import pytest
 
-from daemon.config import ClubTarget, LengthRange, MassRange, SpecConfig
-from daemon.measurement import Verdict
-from daemon.physics.swingweight import points_from_label
-from daemon.specs import judge
+from heft.daemon.config import ClubTarget, LengthRange, MassRange, SpecConfig
+from heft.daemon.measurement import Verdict
+from heft.daemon.physics.swingweight import points_from_label
+from heft.daemon.specs import judge
 
 SPEC = SpecConfig(
     swingweight="D2",

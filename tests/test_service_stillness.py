@@ -12,9 +12,9 @@ from pathlib import Path
 
 import pytest
 
-from daemon.pipeline import BenchPipeline, SelectionError
-from daemon.stillness import Scatter, motion
-from drivers.sim.physics import Placement
+from heft.daemon.pipeline import BenchPipeline, SelectionError
+from heft.daemon.stillness import Scatter, motion
+from heft.drivers.sim.physics import Placement
 from tests.service_bench import LARKSPUR_CLUBS
 from tests.test_service_pipeline import T0, run_pipeline
 

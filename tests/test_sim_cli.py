@@ -12,8 +12,8 @@ from pathlib import Path
 import pytest
 import serial
 
-from daemon.cli import main
-from drivers.sim.definitions import DEFINITIONS_DIR, PROTOCOLS
+from heft.drivers.sim.definitions import DEFINITIONS_DIR, PROTOCOLS
+from heft.tui.cli import main
 
 
 def test_list_shows_every_protocol(capsys: pytest.CaptureFixture[str]) -> None:
@@ -71,7 +71,7 @@ def _interactive() -> None:
 
 def _start(args: list[str]) -> subprocess.Popen[str]:
     return subprocess.Popen(
-        [sys.executable, "-m", "daemon.cli", "simulate", *args],
+        [sys.executable, "-m", "heft.tui.cli", "simulate", *args],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, preexec_fn=_interactive,
     )
 

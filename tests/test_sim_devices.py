@@ -9,7 +9,7 @@ from pathlib import Path
 
 import pytest
 
-from drivers.sim.definitions import (
+from heft.drivers.sim.definitions import (
     DEFINITIONS_DIR,
     BeamDef,
     DefinitionError,
@@ -21,7 +21,7 @@ from drivers.sim.definitions import (
     load_definition,
     parse_definition,
 )
-from drivers.sim.devices import (
+from heft.drivers.sim.devices import (
     BeamDevice,
     PollBalance,
     ScannerDevice,
@@ -29,7 +29,14 @@ from drivers.sim.devices import (
     make_device,
     nice_step,
 )
-from drivers.sim.physics import BenchTimeline, Club, Dynamics, Placement, SingleScale, TwoSupports
+from heft.drivers.sim.physics import (
+    BenchTimeline,
+    Club,
+    Dynamics,
+    Placement,
+    SingleScale,
+    TwoSupports,
+)
 
 CLUB = Club(390.0, 29.5, "LCW-0007")  # invented
 QUIET = Dynamics(frequency_hz=5.0, damping_ratio=0.5, overshoot=0.1)

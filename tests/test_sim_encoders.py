@@ -6,7 +6,7 @@ import re
 
 import pytest
 
-from drivers.sim import encoders as enc
+from heft.drivers.sim import encoders as enc
 
 
 def _crc16_by_division(body: bytes) -> int:

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pytest
 
-from daemon.cli import main
-from drivers.sim.hid_scale import hid_scale_samples
-from drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
+from heft.drivers.sim.hid_scale import hid_scale_samples
+from heft.drivers.sim.physics import BenchTimeline, Club, Placement, make_geometry
+from heft.tui.cli import main
 
 
 def bench() -> BenchTimeline:

@@ -8,7 +8,7 @@ import random
 
 import pytest
 
-from drivers.sim.physics import (
+from heft.drivers.sim.physics import (
     BenchTimeline,
     Club,
     Dynamics,

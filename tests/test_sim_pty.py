@@ -10,12 +10,19 @@ from pathlib import Path
 import pytest
 import serial
 
-from drivers.reading import ClubTag, DeviceInfo, Flag, Reading, ValueKind
-from drivers.registry import create_driver
-from drivers.sim.definitions import RegexLineDef, builtin_definition
-from drivers.sim.devices import SimDevice, make_device
-from drivers.sim.physics import BenchTimeline, Club, Dynamics, Placement, SingleScale, TwoSupports
-from drivers.sim.pty_server import PtyDevice
+from heft.drivers.reading import ClubTag, DeviceInfo, Flag, Reading, ValueKind
+from heft.drivers.registry import create_driver
+from heft.drivers.sim.definitions import RegexLineDef, builtin_definition
+from heft.drivers.sim.devices import SimDevice, make_device
+from heft.drivers.sim.physics import (
+    BenchTimeline,
+    Club,
+    Dynamics,
+    Placement,
+    SingleScale,
+    TwoSupports,
+)
+from heft.drivers.sim.pty_server import PtyDevice
 
 CLUB = Club(390.0, 29.5, "LCW-0042")  # invented
 QUIET = Dynamics(frequency_hz=5.0, damping_ratio=0.5, overshoot=0.1)

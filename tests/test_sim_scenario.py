@@ -6,13 +6,13 @@ from pathlib import Path
 
 import pytest
 
-from daemon.physics.statics import two_support_statics
-from daemon.physics.swingweight import points_from_moment_g_in
-from drivers.reading import ClubTag, Reading
-from drivers.recording import parse_recording, read_recording, replay_outputs
-from drivers.registry import create_driver
-from drivers.sim.physics import PlacementTruth
-from drivers.sim.scenario import (
+from heft.daemon.physics.statics import two_support_statics
+from heft.daemon.physics.swingweight import points_from_moment_g_in
+from heft.drivers.reading import ClubTag, Reading
+from heft.drivers.recording import parse_recording, read_recording, replay_outputs
+from heft.drivers.registry import create_driver
+from heft.drivers.sim.physics import PlacementTruth
+from heft.drivers.sim.scenario import (
     MAKER,
     generate_recording,
     larkspur_irons,

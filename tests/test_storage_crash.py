@@ -9,7 +9,7 @@ import sys
 import time
 from pathlib import Path
 
-from daemon.storage import Store
+from heft.daemon.storage import Store
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -17,7 +17,7 @@ ROOT = Path(__file__).resolve().parents[1]
 # then, after its last row, waits on stdin so the kill always lands on a live process.
 WRITER = """
 import sys
-from daemon.storage import Store
+from heft.daemon.storage import Store
 from tests.sample_records import make_measurement
 store = Store(sys.argv[1])
 for seq in range(1, int(sys.argv[2]) + 1):

@@ -9,10 +9,10 @@ from pathlib import Path
 
 import pytest
 
-from daemon import storage
-from daemon.events import AlarmKind
-from daemon.measurement import Verdict
-from daemon.storage import SCHEMA_VERSION, StorageError, Store
+from heft.daemon import storage
+from heft.daemon.events import AlarmKind
+from heft.daemon.measurement import Verdict
+from heft.daemon.storage import SCHEMA_VERSION, StorageError, Store
 from tests.sample_records import T0, make_alarm, make_calibration, make_measurement
 
 

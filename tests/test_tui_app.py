@@ -10,7 +10,7 @@ import pytest
 from textual.pilot import Pilot
 from textual.widgets import ContentSwitcher, Static
 
-from daemon.command_api import (
+from heft.daemon.command_api import (
     AcknowledgeAlarm,
     CalibrateSpan,
     CalibrateZero,
@@ -20,22 +20,22 @@ from daemon.command_api import (
     SelectJob,
     VerifyCheckMass,
 )
-from daemon.events import EventBus, LiveReading, MeasurementCaptured
-from drivers.reading import Flag
-from tui.app import HeftDashboard
-from tui.calibration import CalibrationScreen
-from tui.format import READ_ONLY_HINT
-from tui.mqtt_source import MqttSource
-from tui.readout import AlarmBanner, VerdictBanner, split_label
-from tui.scripted_bench import (
+from heft.daemon.events import EventBus, LiveReading, MeasurementCaptured
+from heft.drivers.reading import Flag
+from heft.tui.app import HeftDashboard
+from heft.tui.calibration import CalibrationScreen
+from heft.tui.format import READ_ONLY_HINT
+from heft.tui.mqtt_source import MqttSource
+from heft.tui.readout import AlarmBanner, VerdictBanner, split_label
+from heft.tui.scripted_bench import (
     JOBS,
     STATION,
     make_measurement,
     out_of_spec_event,
     session_events,
 )
-from tui.source import InProcessSource, ScriptedSource
-from tui.tables import AlarmsTable, MeasurementsTable
+from heft.tui.source import InProcessSource, ScriptedSource
+from heft.tui.tables import AlarmsTable, MeasurementsTable
 
 SIZE = (120, 40)
 
@@ -288,7 +288,7 @@ async def test_a_crashing_dashboard_does_not_stop_the_service_thread() -> None:
 
 
 async def test_in_process_source_on_the_same_loop_with_backfill(tmp_path: Path) -> None:
-    from daemon.storage import Store
+    from heft.daemon.storage import Store
 
     bus = EventBus()
     store = Store(tmp_path / "bench.db")

@@ -14,20 +14,20 @@ from pathlib import Path
 
 import pytest
 
-from daemon.command_api import AcknowledgeAlarm, Command, Reply
-from daemon.events import AlarmChanged, DeviceStatus, EventBus, MeasurementCaptured
-from daemon.measurement import Measurement
-from daemon.mqtt_link import MqttLink
-from daemon.mqtt_settings import MqttSettings
-from daemon.storage import Store
+from heft.daemon.command_api import AcknowledgeAlarm, Command, Reply
+from heft.daemon.events import AlarmChanged, DeviceStatus, EventBus, MeasurementCaptured
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import MqttLink
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.storage import Store
+from heft.tui.app import HeftDashboard
+from heft.tui.mqtt_source import BrokerUrlError, MqttSource, flags_from_names, settings_from_url
+from heft.tui.pickers import StationPicker
+from heft.tui.readout import VerdictBanner
+from heft.tui.scripted_bench import make_measurement, out_of_spec_event, session_events
+from heft.tui.tables import DevicesTable
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import settings_for, stop_task, wait_until
-from tui.app import HeftDashboard
-from tui.mqtt_source import BrokerUrlError, MqttSource, flags_from_names, settings_from_url
-from tui.pickers import StationPicker
-from tui.readout import VerdictBanner
-from tui.scripted_bench import make_measurement, out_of_spec_event, session_events
-from tui.tables import DevicesTable
 
 SIZE = (120, 40)
 

@@ -16,13 +16,13 @@ from pathlib import Path
 
 from textual.widgets import Static
 
-from daemon.command_api import SelectJob
-from daemon.commands.demo import SCENARIO, STATION, demo_bench, demo_plan
-from daemon.measurement import Verdict
-from tui.app import HeftDashboard
-from tui.calibration import CalibrationScreen
-from tui.readout import VerdictBanner
-from tui.source import InProcessSource
+from heft.daemon.command_api import SelectJob
+from heft.daemon.measurement import Verdict
+from heft.tui.app import HeftDashboard
+from heft.tui.calibration import CalibrationScreen
+from heft.tui.commands.demo import SCENARIO, STATION, demo_bench, demo_plan
+from heft.tui.readout import VerdictBanner
+from heft.tui.source import InProcessSource
 
 
 def test_plan_starts_with_the_simulator_scenario_then_repeats_the_set() -> None:
@@ -79,7 +79,7 @@ async def test_demo_captures_on_screen_and_q_stops_everything() -> None:
 def heft(*args: str) -> subprocess.CompletedProcess[str]:
     """Run the real command line in a fresh interpreter (bounded)."""
     return subprocess.run(
-        [sys.executable, "-m", "daemon", *args], capture_output=True, text=True, timeout=90
+        [sys.executable, "-m", "heft.tui.cli", *args], capture_output=True, text=True, timeout=90
     )
 
 
@@ -157,7 +157,7 @@ async def test_calibration_pauses_the_demo_operator_and_a_job_change_keeps_the_c
 def test_sighup_stops_the_demo_like_q(tmp_path: Path) -> None:
     env = {**os.environ, "TMPDIR": str(tmp_path)}
     proc = subprocess.Popen(
-        [sys.executable, "-m", "daemon", "demo", "--headless-seconds", "120"],
+        [sys.executable, "-m", "heft.tui.cli", "demo", "--headless-seconds", "120"],
         env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
     try:

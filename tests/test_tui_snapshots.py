@@ -11,11 +11,11 @@ from typing import Any
 
 from textual.pilot import Pilot
 
-from daemon.command_api import Command, Reply, VerifyCheckMass
-from tui.app import HeftDashboard
-from tui.calibration import CalibrationScreen
-from tui.scripted_bench import JOBS, session_events
-from tui.source import ScriptedSource
+from heft.daemon.command_api import Command, Reply, VerifyCheckMass
+from heft.tui.app import HeftDashboard
+from heft.tui.calibration import CalibrationScreen
+from heft.tui.scripted_bench import JOBS, session_events
+from heft.tui.source import ScriptedSource
 
 SIZE = (120, 40)
 Snap = Callable[..., bool]

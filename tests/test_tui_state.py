@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-from daemon.events import AlarmKind, CaptureState, CaptureStateChanged, LiveReading
-from daemon.measurement import Verdict
-from drivers.reading import Flag
-from tui.calibration import live_text
-from tui.format import alarm_banner_text, capture_text, verdict_banner, with_u
-from tui.readout import gauge_text
-from tui.scripted_bench import JOB, STATION, out_of_spec_event, session_events
-from tui.set_view import latest_per_club, points_for
-from tui.state import DashboardState, club_order_key
-from tui.tables import last_reading_text
+from heft.daemon.events import AlarmKind, CaptureState, CaptureStateChanged, LiveReading
+from heft.daemon.measurement import Verdict
+from heft.drivers.reading import Flag
+from heft.tui.calibration import live_text
+from heft.tui.format import alarm_banner_text, capture_text, verdict_banner, with_u
+from heft.tui.readout import gauge_text
+from heft.tui.scripted_bench import JOB, STATION, out_of_spec_event, session_events
+from heft.tui.set_view import latest_per_club, points_for
+from heft.tui.state import DashboardState, club_order_key
+from heft.tui.tables import last_reading_text
 
 
 def test_session_folds_into_state() -> None:

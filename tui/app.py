@@ -19,19 +19,19 @@ from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Footer, Header, TabbedContent, TabPane
 
-from daemon.command_api import AcknowledgeAlarm, Command, Rearm, SelectJob, Tare
-from daemon.events import CaptureState
-from daemon.measurement import Verdict
-from tui.calibration import CalibrationScreen
-from tui.channels import ChannelsPanel
-from tui.format import READ_ONLY_HINT
-from tui.help import HelpScreen
-from tui.pickers import JobPicker, StationPicker
-from tui.readout import AlarmBanner, CaptureLine, Readout, ToleranceGauge, VerdictBanner
-from tui.set_view import SetView
-from tui.source import EventSource
-from tui.state import DashboardState
-from tui.tables import AlarmsTable, DevicesTable, MeasurementsTable
+from heft.daemon.command_api import AcknowledgeAlarm, Command, Rearm, SelectJob, Tare
+from heft.daemon.events import CaptureState
+from heft.daemon.measurement import Verdict
+from heft.tui.calibration import CalibrationScreen
+from heft.tui.channels import ChannelsPanel
+from heft.tui.format import READ_ONLY_HINT
+from heft.tui.help import HelpScreen
+from heft.tui.pickers import JobPicker, StationPicker
+from heft.tui.readout import AlarmBanner, CaptureLine, Readout, ToleranceGauge, VerdictBanner
+from heft.tui.set_view import SetView
+from heft.tui.source import EventSource
+from heft.tui.state import DashboardState
+from heft.tui.tables import AlarmsTable, DevicesTable, MeasurementsTable
 
 log = logging.getLogger(__name__)
 

@@ -18,8 +18,8 @@ from textual.screen import Screen
 from textual.widgets import Button, ContentSwitcher, Footer, Input, OptionList, Static
 from textual.widgets.option_list import Option
 
-from daemon.command_api import CalibrateSpan, CalibrateZero, Command, Reply, VerifyCheckMass
-from daemon.units import UnitError, parse_quantity
+from heft.daemon.command_api import CalibrateSpan, CalibrateZero, Command, Reply, VerifyCheckMass
+from heft.drivers.units import UnitError, parse_quantity
 
 STEPS = ("step-pick", "step-zero", "step-span", "step-verify", "step-result")
 STEP_TITLES = {

@@ -7,8 +7,8 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Sparkline, Static
 
-from drivers.reading import Flag
-from tui.state import ChannelTrace
+from heft.drivers.reading import Flag
+from heft.tui.state import ChannelTrace
 
 # Words for flags that matter on a bench; the first one present is shown.
 _FLAG_WORDS: tuple[tuple[Flag, str], ...] = (

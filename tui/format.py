@@ -7,9 +7,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from daemon.events import Alarm, AlarmKind, CaptureState, CaptureStateChanged
-from daemon.measurement import CheckResult, Measurement, Verdict
-from daemon.physics.swingweight import describe_points
+from heft.daemon.events import Alarm, AlarmKind, CaptureState, CaptureStateChanged
+from heft.daemon.measurement import CheckResult, Measurement, Verdict
+from heft.daemon.physics.swingweight import describe_points
 
 VERDICT_WORDS: dict[Verdict, str] = {
     Verdict.PASS: "PASS",

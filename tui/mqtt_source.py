@@ -22,8 +22,8 @@ from paho.mqtt.properties import Properties
 from pydantic import SecretStr, ValidationError
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential
 
-from daemon.command_api import Command, Reply
-from daemon.events import (
+from heft.daemon.command_api import Command, Reply
+from heft.daemon.events import (
     Alarm,
     AlarmChanged,
     CaptureStateChanged,
@@ -32,10 +32,10 @@ from daemon.events import (
     LiveReading,
     MeasurementCaptured,
 )
-from daemon.measurement import Measurement
-from daemon.mqtt_link import raise_if_cancel_requested
-from daemon.mqtt_settings import MqttSettings, TlsSettings
-from daemon.mqtt_topics import (
+from heft.daemon.measurement import Measurement
+from heft.daemon.mqtt_link import raise_if_cancel_requested
+from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
+from heft.daemon.mqtt_topics import (
     ALARM_EVENT,
     ALARMS,
     CAPTURE,
@@ -54,9 +54,9 @@ from daemon.mqtt_topics import (
     check_level,
     parse_topic,
 )
-from drivers.reading import Flag
-from tui.source import EventSource
-from tui.state import station_of
+from heft.drivers.reading import Flag
+from heft.tui.source import EventSource
+from heft.tui.state import station_of
 
 log = logging.getLogger(__name__)
 

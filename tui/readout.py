@@ -9,9 +9,9 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Digits, Static
 
-from daemon.events import Alarm, CaptureState, CaptureStateChanged
-from daemon.measurement import CheckResult, Measurement, Verdict
-from tui.format import (
+from heft.daemon.events import Alarm, CaptureState, CaptureStateChanged
+from heft.daemon.measurement import CheckResult, Measurement, Verdict
+from heft.tui.format import (
     CHECK_NAMES,
     VERDICT_CLASS,
     alarm_banner_text,
@@ -20,7 +20,7 @@ from tui.format import (
     verdict_banner,
     with_u,
 )
-from tui.state import find_check
+from heft.tui.state import find_check
 
 _BANNER_CLASSES = ("pass", "near", "fail", "nospec", "idle")
 

@@ -12,8 +12,8 @@ import uuid
 from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
 
-from daemon.config import ClubTarget, MassRange, SpecConfig
-from daemon.events import (
+from heft.daemon.config import ClubTarget, MassRange, SpecConfig
+from heft.daemon.events import (
     Alarm,
     AlarmChanged,
     AlarmKind,
@@ -24,12 +24,12 @@ from daemon.events import (
     LiveReading,
     MeasurementCaptured,
 )
-from daemon.measurement import ChannelWindow, Measurement, Verdict
-from daemon.physics.club import club_from_two_supports
-from daemon.physics.swingweight import moment_g_in_from_points
-from daemon.physics.uncertainty import UncertainValue
-from daemon.specs import judge
-from drivers.reading import Flag
+from heft.daemon.measurement import ChannelWindow, Measurement, Verdict
+from heft.daemon.physics.club import club_from_two_supports
+from heft.daemon.physics.swingweight import moment_g_in_from_points
+from heft.daemon.physics.uncertainty import UncertainValue
+from heft.daemon.specs import judge
+from heft.drivers.reading import Flag
 
 STATION = "bench-1"
 JOB = "LK-2417"

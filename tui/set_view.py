@@ -10,9 +10,9 @@ from textual.containers import Vertical
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
-from daemon.measurement import Measurement, Verdict
-from daemon.physics.swingweight import describe_points
-from tui.state import club_order_key, find_check
+from heft.daemon.measurement import Measurement, Verdict
+from heft.daemon.physics.swingweight import describe_points
+from heft.tui.state import club_order_key, find_check
 
 BAND_COLOUR = "cyan"
 OK_MARKER = "o"

@@ -19,9 +19,9 @@ from collections.abc import Awaitable, Callable, Iterable, Sequence
 from concurrent.futures import Future
 from typing import Any, Protocol
 
-from daemon.command_api import Command, Reply
-from daemon.events import Event, EventBus, Subscription
-from daemon.measurement import Measurement
+from heft.daemon.command_api import Command, Reply
+from heft.daemon.events import Event, EventBus, Subscription
+from heft.daemon.measurement import Measurement
 
 INBOX_SIZE = 20_000  # about a minute of four channels at 80 samples/s
 BATCH_MAX = 5_000

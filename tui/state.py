@@ -11,7 +11,7 @@ import re
 from collections import deque
 from dataclasses import dataclass, field
 
-from daemon.events import (
+from heft.daemon.events import (
     Alarm,
     AlarmChanged,
     CaptureState,
@@ -21,8 +21,8 @@ from daemon.events import (
     LiveReading,
     MeasurementCaptured,
 )
-from daemon.measurement import CheckResult, Measurement
-from drivers.reading import Flag
+from heft.daemon.measurement import CheckResult, Measurement
+from heft.drivers.reading import Flag
 
 TRACE_LENGTH = 240  # samples kept per channel for the sparkline (3 s at 80 samples/s)
 MEASUREMENTS_KEPT = 500

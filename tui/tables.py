@@ -8,9 +8,9 @@ from rich.text import Text
 from textual.coordinate import Coordinate
 from textual.widgets import DataTable
 
-from daemon.events import Alarm, DeviceStatus
-from daemon.measurement import Measurement, Verdict
-from tui.format import ALARM_KIND_WORDS, VERDICT_WORDS, alarm_state_word
+from heft.daemon.events import Alarm, DeviceStatus
+from heft.daemon.measurement import Measurement, Verdict
+from heft.tui.format import ALARM_KIND_WORDS, VERDICT_WORDS, alarm_state_word
 
 VERDICT_STYLE: dict[Verdict, str] = {
     Verdict.PASS: "bold green",

@@ -14,21 +14,21 @@ from collections.abc import Callable, Mapping
 from dataclasses import asdict, dataclass
 from typing import ParamSpec
 
-from daemon.physics.statics import (
+from heft.daemon.physics.statics import (
     ClubStatics,
     balance_point_from_moment_in,
     lever_statics,
     two_support_statics,
 )
-from daemon.physics.swingweight import (
+from heft.daemon.physics.swingweight import (
     FULCRUM_14_IN,
     G_IN_PER_POINT,
     describe_points,
     moment_about_g_in,
     points_from_moment_g_in,
 )
-from daemon.physics.uncertainty import UncertainValue, expanded, propagate
-from daemon.units import g_in_to_oz_in
+from heft.daemon.physics.uncertainty import UncertainValue, expanded, propagate
+from heft.drivers.units import g_in_to_oz_in
 
 P = ParamSpec("P")
 # The club seated against the butt stop, exactly (no seating uncertainty given).

@@ -10,16 +10,16 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
-from daemon.physics.club import BenchInputs
-from daemon.physics.statics import ClubStatics, balance_point_from_moment_in
-from daemon.physics.swingweight import (
+from heft.daemon.physics.club import BenchInputs
+from heft.daemon.physics.statics import ClubStatics, balance_point_from_moment_in
+from heft.daemon.physics.swingweight import (
     FULCRUM_14_IN,
     G_IN_PER_POINT,
     check_points_in_range,
     moment_about_g_in,
     points_from_moment_g_in,
 )
-from daemon.physics.uncertainty import UncertainValue
+from heft.daemon.physics.uncertainty import UncertainValue
 
 # A mass placed this close to the fulcrum barely moves the swing weight; asking for it is a
 # mistake on the bench rather than a correction (0.05 in ~ 1.3 mm).

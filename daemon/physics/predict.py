@@ -17,10 +17,10 @@ import math
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 
-from daemon.physics.club import ClubNumbers, club_from_weight_and_balance
-from daemon.physics.statics import ClubStatics, balance_point_from_moment_in
-from daemon.physics.swingweight import FULCRUM_14_IN
-from daemon.physics.uncertainty import UncertainValue
+from heft.daemon.physics.club import ClubNumbers, club_from_weight_and_balance
+from heft.daemon.physics.statics import ClubStatics, balance_point_from_moment_in
+from heft.daemon.physics.swingweight import FULCRUM_14_IN
+from heft.daemon.physics.uncertainty import UncertainValue
 
 # Head CG back from the far end of the club along the shaft axis: 0.5-1.5 in (common practice).
 DEFAULT_HEAD_CG_FROM_END_IN = 1.0

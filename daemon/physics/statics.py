@@ -18,7 +18,7 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-from daemon.physics.swingweight import FULCRUM_14_IN
+from heft.daemon.physics.swingweight import FULCRUM_14_IN
 
 
 class StaticsError(ValueError):

@@ -18,7 +18,7 @@ import math
 import re
 from typing import Final
 
-from daemon.units import GRAMS_PER_OUNCE, g_in_to_oz_in, g_to_oz, oz_in_to_g_in
+from heft.drivers.units import GRAMS_PER_OUNCE, g_in_to_oz_in, g_to_oz, oz_in_to_g_in
 
 FULCRUM_14_IN: Final = 14.0
 FULCRUM_12_IN: Final = 12.0

@@ -18,7 +18,7 @@ from typing import Any, ClassVar, Final
 
 from pydantic import Field
 
-from drivers.base import (
+from heft.drivers.base import (
     CommandReply,
     FrameError,
     LineDriver,
@@ -26,7 +26,7 @@ from drivers.base import (
     UnsupportedCommand,
     parse_int,
 )
-from drivers.reading import DeviceInfo, DriverOutput, Flag, Reading, ValueKind
+from heft.drivers.reading import DeviceInfo, DriverOutput, Flag, Reading, ValueKind
 
 log = logging.getLogger("heft.drivers")
 

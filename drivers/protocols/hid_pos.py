@@ -16,8 +16,8 @@ import struct
 from dataclasses import dataclass
 from typing import ClassVar, Final
 
-from drivers.base import Driver, FrameError
-from drivers.reading import DriverOutput, Flag
+from heft.drivers.base import Driver, FrameError
+from heft.drivers.reading import DriverOutput, Flag
 
 DATA_REPORT_ID: Final = 0x03
 CONTROL_REPORT_ID: Final = 0x02
@@ -64,7 +64,7 @@ UNIT_CODES: Final[dict[int, str]] = {
     11: "oz",
     12: "lb",
 }
-"""Unit codes heft converts (names as daemon.units knows them)."""
+"""Unit codes heft converts (names as heft.drivers.units knows them)."""
 
 AMBIGUOUS_UNIT_CODES: Final[dict[int, str]] = {
     5: "tael (its mass differs by region)",

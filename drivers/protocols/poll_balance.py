@@ -15,8 +15,8 @@ from typing import Any, ClassVar, Final, Literal
 
 from pydantic import Field
 
-from drivers.base import CommandReply, FrameError, LineDriver, LineOptions, parse_decimal
-from drivers.reading import DeviceInfo, DriverOutput, Flag
+from heft.drivers.base import CommandReply, FrameError, LineDriver, LineOptions, parse_decimal
+from heft.drivers.reading import DeviceInfo, DriverOutput, Flag
 
 UNITS: Final = frozenset({"g", "kg", "mg", "oz", "lb", "ct"})
 _WEIGHT_FLAGS: Final = {"S": Flag.STABLE, "D": Flag.MOTION}

@@ -15,9 +15,9 @@ from typing import Any, ClassVar, Literal
 
 from pydantic import Field, field_validator, model_validator
 
-from daemon import units
-from drivers.base import FrameError, LineDriver, LineOptions, parse_decimal
-from drivers.reading import DriverOutput, Flag
+from heft.drivers import units
+from heft.drivers.base import FrameError, LineDriver, LineOptions, parse_decimal
+from heft.drivers.reading import DriverOutput, Flag
 
 _ESCAPES = {"\\r": "\r", "\\n": "\n", "\\t": "\t"}
 

@@ -12,9 +12,9 @@ from typing import Any, ClassVar
 
 from pydantic import field_validator
 
-from drivers.base import FrameError, LineDriver, LineOptions
-from drivers.protocols.regex_line import compile_option
-from drivers.reading import ClubTag, DriverOutput
+from heft.drivers.base import FrameError, LineDriver, LineOptions
+from heft.drivers.protocols.regex_line import compile_option
+from heft.drivers.reading import ClubTag, DriverOutput
 
 
 class ScannerOptions(LineOptions):

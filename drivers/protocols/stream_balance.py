@@ -16,8 +16,8 @@ from typing import Any, ClassVar, Final
 
 from pydantic import Field
 
-from drivers.base import CommandReply, FrameError, LineDriver, LineOptions, parse_decimal
-from drivers.reading import DriverOutput, Flag
+from heft.drivers.base import CommandReply, FrameError, LineDriver, LineOptions, parse_decimal
+from heft.drivers.reading import DriverOutput, Flag
 
 UNITS: Final = frozenset({"g", "kg", "oz", "lb", "ct", "ozt"})
 _STABILITY: Final = {"ST": Flag.STABLE, "US": Flag.MOTION}

@@ -1,4 +1,4 @@
-"""Simulated devices defined as data: ``hardware_fixtures/sim/*.json``.
+"""Simulated devices defined as data: ``drivers/sim/definition_files/*.json`` (package data).
 
 Each file describes one device: its protocol, sample rate, display step, capacity, sensor noise
 and drift, and protocol details (ADC counts per gram and offset for beam channels, the line
@@ -10,14 +10,16 @@ new file, not new code.
 from __future__ import annotations
 
 import json
+from importlib import resources
+from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Annotated, Any, Final, Literal, TypeVar
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
 SPEC_VERSION: Final = 1
-# The repository's fixture folder (the package is installed editable from the repository).
-DEFINITIONS_DIR: Final = Path(__file__).resolve().parents[2] / "hardware_fixtures" / "sim"
+# Found through the package (importlib.resources), so an installed wheel has them too.
+DEFINITIONS_DIR: Final[Traversable] = resources.files(__package__) / "definition_files"
 
 Protocol = Literal["poll_balance", "stream_balance", "regex_line", "beam", "scanner"]
 PROTOCOLS: Final[tuple[str, ...]] = (
@@ -149,9 +151,9 @@ def parse_definition(data: Any, *, source: str = "<definition>") -> AnyDefinitio
         raise DefinitionError(f"{source}: field {where}: {first['msg']}") from err
 
 
-def load_definition(path: str | Path) -> AnyDefinition:
+def load_definition(path: str | Path | Traversable) -> AnyDefinition:
     """Read and validate one definition file."""
-    p = Path(path)
+    p = Path(path) if isinstance(path, str) else path
     try:
         data = json.loads(p.read_text(encoding="utf-8"))
     except OSError as err:
@@ -162,10 +164,14 @@ def load_definition(path: str | Path) -> AnyDefinition:
 
 
 def builtin_definition(name: str) -> AnyDefinition:
-    """The shipped definition ``hardware_fixtures/sim/<name>.json`` (one per protocol)."""
+    """The shipped definition ``definition_files/<name>.json`` (one per protocol)."""
     path = DEFINITIONS_DIR / f"{name}.json"
-    if not path.exists():
-        known = sorted(p.stem for p in DEFINITIONS_DIR.glob("*.json"))
+    if not path.is_file():
+        known = sorted(
+            p.name.removesuffix(".json")
+            for p in DEFINITIONS_DIR.iterdir()
+            if p.name.endswith(".json")
+        )
         raise DefinitionError(f"no device definition {name!r}; shipped: {', '.join(known)}")
     return load_definition(path)
 

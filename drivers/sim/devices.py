@@ -22,9 +22,8 @@ from collections import deque
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from daemon.units import g_to_mass, mass_to_g
-from drivers.sim import encoders
-from drivers.sim.definitions import (
+from heft.drivers.sim import encoders
+from heft.drivers.sim.definitions import (
     AnyDefinition,
     BeamDef,
     PollBalanceDef,
@@ -32,7 +31,8 @@ from drivers.sim.definitions import (
     ScannerDef,
     StreamBalanceDef,
 )
-from drivers.sim.physics import BenchTimeline, SensorNoise
+from heft.drivers.sim.physics import BenchTimeline, SensorNoise
+from heft.drivers.units import g_to_mass, mass_to_g
 
 Frame = tuple[float, bytes]  # (due time on the bench clock in seconds, bytes on the wire)
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 from decimal import Decimal
 
 # One implementation of the CRC-16/CCITT-FALSE check, shared with the host-side parser.
-from drivers.protocols.beam import checksum as beam_checksum
+from heft.drivers.protocols.beam import checksum as beam_checksum
 
 CRLF = b"\r\n"
 LF = b"\n"

@@ -11,7 +11,7 @@ from __future__ import annotations
 from collections import deque
 from typing import Final
 
-from drivers.sim.physics import BenchTimeline, SensorNoise
+from heft.drivers.sim.physics import BenchTimeline, SensorNoise
 
 STABLE_WINDOW_S: Final = 0.5
 """The scale calls a weight stable once every shown value has stayed within one step this long."""

@@ -32,11 +32,19 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Literal, Protocol
 
-from daemon.physics.swingweight import moment_about_g_in
-
 FULCRUM_IN = 14.0  # the Lorythmic fulcrum, inches from the butt (domain.md)
 
 _OPEN_HORIZON_S = 30.0  # how far ground truth looks for a club not yet lifted
+
+
+def moment_about_g_in(total_weight_g: float, balance_point_in: float, fulcrum_in: float) -> float:
+    """Static moment about a fulcrum (g*in): weight times lever arm, textbook statics.
+
+    The simulator keeps its own copy instead of importing the measuring core, so a wrong formula
+    there is not mirrored in the bench that tests it.
+    """
+    return total_weight_g * (balance_point_in - fulcrum_in)
+
 
 Channel = int
 GeometryKind = Literal["two_support", "lever", "single"]

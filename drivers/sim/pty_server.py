@@ -35,7 +35,7 @@ from pathlib import Path
 from types import TracebackType
 from typing import Self
 
-from drivers.sim.devices import Frame, SimDevice
+from heft.drivers.sim.devices import Frame, SimDevice
 
 _IDLE_WAKE_S = 0.05  # the longest the thread sleeps without checking for requests
 

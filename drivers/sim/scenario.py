@@ -21,10 +21,10 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from drivers.recording import Chunk, RecordingHeader, RecordingWriter
-from drivers.sim.definitions import BeamDef, ScannerDef, builtin_of
-from drivers.sim.devices import BeamDevice, ScannerDevice, SimDevice
-from drivers.sim.physics import (
+from heft.drivers.recording import Chunk, RecordingHeader, RecordingWriter
+from heft.drivers.sim.definitions import BeamDef, ScannerDef, builtin_of
+from heft.drivers.sim.devices import BeamDevice, ScannerDevice, SimDevice
+from heft.drivers.sim.physics import (
     BenchTimeline,
     Club,
     Dynamics,

@@ -20,10 +20,10 @@ import sys
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 
-from daemon.capture import Captured, CaptureEngine
-from daemon.capture_params import CaptureParams
-from daemon.physics.statics import two_support_statics
-from daemon.physics.swingweight import points_from_moment_g_in
+from heft.daemon.capture import Captured, CaptureEngine
+from heft.daemon.capture_params import CaptureParams
+from heft.daemon.physics.statics import two_support_statics
+from heft.daemon.physics.swingweight import points_from_moment_g_in
 from tests.bench.capture_corpus import (
     CHANNELS,
     RIGS,

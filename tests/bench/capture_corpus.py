@@ -29,8 +29,8 @@ from collections import deque
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
-from drivers.reading import Flag
-from drivers.sim.physics import Club, Dynamics, Placement, TwoSupports, placement_force_g
+from heft.drivers.reading import Flag
+from heft.drivers.sim.physics import Club, Dynamics, Placement, TwoSupports, placement_force_g
 
 SUPPORT_A_IN = 4.0  # butt-side support, inches from the butt stop
 SUPPORT_B_IN = 36.0  # head-side support

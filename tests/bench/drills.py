@@ -45,12 +45,12 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
-from daemon.storage import Store
-from drivers.reading import ClubTag, Reading
-from drivers.recording import read_recording
-from drivers.registry import available_drivers, create_driver
-from drivers.sim.physics import Placement
-from drivers.sim.pty_server import PtyDevice
+from heft.daemon.storage import Store
+from heft.drivers.reading import ClubTag, Reading
+from heft.drivers.recording import read_recording
+from heft.drivers.registry import available_drivers, create_driver
+from heft.drivers.sim.physics import Placement
+from heft.drivers.sim.pty_server import PtyDevice
 from tests.bench.rig import (
     REPO,
     HeftRun,

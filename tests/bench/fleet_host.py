@@ -17,8 +17,8 @@ import sys
 import tomllib
 from pathlib import Path
 
-from daemon.config import parse_config
-from daemon.service import Service
+from heft.daemon.config import parse_config
+from heft.daemon.service import Service
 from tests.bench.rig import beam_definition, demo_plan, serve_beam, station_toml
 
 

@@ -17,9 +17,9 @@ import tty
 from pathlib import Path
 from types import TracebackType
 
-from drivers.sim.definitions import BeamDef
-from drivers.sim.devices import make_device
-from drivers.sim.physics import BenchTimeline, make_geometry
+from heft.drivers.sim.definitions import BeamDef
+from heft.drivers.sim.devices import make_device
+from heft.drivers.sim.physics import BenchTimeline, make_geometry
 from tests.bench.rig import demo_plan
 
 

@@ -60,9 +60,9 @@ from typing import Any
 
 import aiomqtt
 
-from daemon.measurement import Measurement
-from daemon.storage import Store
-from drivers.sim.definitions import BeamDef
+from heft.daemon.measurement import Measurement
+from heft.daemon.storage import Store
+from heft.drivers.sim.definitions import BeamDef
 from tests.bench.flood import FloodPty, beam_frames
 from tests.bench.rig import (
     CpuMeter,

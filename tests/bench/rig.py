@@ -32,10 +32,10 @@ import aiomqtt
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
-from drivers.sim.definitions import BeamDef, builtin_definition
-from drivers.sim.devices import Frame, make_device
-from drivers.sim.physics import BenchTimeline, Club, Placement, cycle_placements, make_geometry
-from drivers.sim.pty_server import PtyDevice
+from heft.drivers.sim.definitions import BeamDef, builtin_definition
+from heft.drivers.sim.devices import Frame, make_device
+from heft.drivers.sim.physics import BenchTimeline, Club, Placement, cycle_placements, make_geometry
+from heft.drivers.sim.pty_server import PtyDevice
 from tests.mqtt_broker import Broker, find_mosquitto, free_port
 from tests.processes import stop_processes
 
@@ -145,7 +145,7 @@ class HeftRun:
     def start(self) -> HeftRun:
         log = self.log.open("ab")
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "daemon", "run", "--config", str(self.config),
+            [sys.executable, "-m", "heft.tui.cli", "run", "--config", str(self.config),
              "--log-level", "info", *self.extra],
             stdout=subprocess.DEVNULL, stderr=log, cwd=REPO,
         )

@@ -31,19 +31,19 @@ from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from daemon.command_api import Command, Reply, SelectJob, SelectSpec
-from daemon.config import StationConfig, parse_config
-from daemon.events import EventBus
-from daemon.mqtt_settings import MqttSettings
-from daemon.physics.swingweight import label_from_points, moment_g_in_from_points
-from daemon.records import CalibrationRecord, ReferenceMass
-from daemon.service import Service
-from daemon.storage import Store
-from drivers.sim.devices import BeamDevice, ScannerDevice
-from drivers.sim.physics import BenchTimeline, Club, Placement
-from drivers.sim.pty_server import PtyDevice
-from drivers.sim.scenario import MAKER, larkspur_irons, scenario_timeline
-from tui.source import INBOX_SIZE
+from heft.daemon.command_api import Command, Reply, SelectJob, SelectSpec
+from heft.daemon.config import StationConfig, parse_config
+from heft.daemon.events import EventBus
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.physics.swingweight import label_from_points, moment_g_in_from_points
+from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.daemon.service import Service
+from heft.daemon.storage import Store
+from heft.drivers.sim.devices import BeamDevice, ScannerDevice
+from heft.drivers.sim.physics import BenchTimeline, Club, Placement
+from heft.drivers.sim.pty_server import PtyDevice
+from heft.drivers.sim.scenario import MAKER, larkspur_irons, scenario_timeline
+from heft.tui.source import INBOX_SIZE
 
 if TYPE_CHECKING:
     from textual.app import App
@@ -409,9 +409,9 @@ def register(subparsers: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from tui.app import HeftDashboard
-    from tui.mqtt_source import BrokerUrlError, settings_from_url
-    from tui.source import InProcessSource
+    from heft.tui.app import HeftDashboard
+    from heft.tui.mqtt_source import BrokerUrlError, settings_from_url
+    from heft.tui.source import InProcessSource
 
     parser: argparse.ArgumentParser = args._parser
     mqtt = None

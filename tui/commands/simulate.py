@@ -21,9 +21,8 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from daemon.units import UnitError, parse_quantity
-from drivers.reading import Flag, Reading
-from drivers.sim.definitions import (
+from heft.drivers.reading import Flag, Reading
+from heft.drivers.sim.definitions import (
     PROTOCOLS,
     AnyDefinition,
     BeamDef,
@@ -32,9 +31,9 @@ from drivers.sim.definitions import (
     builtin_definition,
     load_definition,
 )
-from drivers.sim.devices import ScaleDevice, make_device
-from drivers.sim.hid_scale import hid_scale_samples
-from drivers.sim.physics import (
+from heft.drivers.sim.devices import ScaleDevice, make_device
+from heft.drivers.sim.hid_scale import hid_scale_samples
+from heft.drivers.sim.physics import (
     BenchTimeline,
     Club,
     Geometry,
@@ -43,7 +42,8 @@ from drivers.sim.physics import (
     cycle_placements,
     make_geometry,
 )
-from drivers.sim.pty_server import PtyDevice, check_link_replaceable
+from heft.drivers.sim.pty_server import PtyDevice, check_link_replaceable
+from heft.drivers.units import UnitError, parse_quantity
 
 HID = "hid_pos"
 # Display exponent of the simulated HID scale per unit: 0.1 g, 0.01 oz, 0.001 lb ...
@@ -267,10 +267,10 @@ def _run_hid(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             parser.error(f"--{option}: a simulated HID scale has no port or definition file; "
                          "it lives inside this process")
     # Imported here: pyusb and the fake backend are only needed for this mode.
-    from drivers.fake_usb import SIM_PRODUCT_ID, SIM_VENDOR_ID, fake_scale_backend_from_weights
-    from drivers.protocols.hid_pos import HidPosDriver
-    from drivers.session import DeviceSession
-    from drivers.usb_transport import UsbHidTransport
+    from heft.drivers.fake_usb import SIM_PRODUCT_ID, SIM_VENDOR_ID, fake_scale_backend_from_weights
+    from heft.drivers.protocols.hid_pos import HidPosDriver
+    from heft.drivers.session import DeviceSession
+    from heft.drivers.usb_transport import UsbHidTransport
 
     unit = args.unit or "g"
     rate_hz = args.rate or 10.0

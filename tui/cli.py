@@ -1,4 +1,4 @@
-"""``heft`` command line: one sub-command per module in ``daemon.commands``.
+"""``heft`` command line: one sub-command per module in ``heft.tui.commands``.
 
 Each command module exposes ``register(subparsers) -> None``, which adds its parser and sets
 ``func`` (``Callable[[argparse.Namespace], int]``) as the parser default. argparse already gives
@@ -33,12 +33,12 @@ def build_parser() -> argparse.ArgumentParser:
         prog="heft",
         description="Weigh golf clubs hands-free: total weight, balance point, swing weight.",
     )
-    from daemon.version import __version__
+    from heft.daemon.version import __version__
 
     parser.add_argument("--version", action="version", version=f"heft {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
     for name in COMMAND_MODULES:
-        module = importlib.import_module(f"daemon.commands.{name}")
+        module = importlib.import_module(f"heft.tui.commands.{name}")
         module.register(sub)
     return parser
 

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
 
-from daemon.physics.club import (
+from heft.daemon.physics.club import (
     BenchInputs,
     ClubNumbers,
     club_numbers,
@@ -24,9 +24,9 @@ from daemon.physics.club import (
     two_supports_bench,
     weight_and_balance_bench,
 )
-from daemon.physics.correction import CorrectionError, CorrectionNumbers, correction_numbers
-from daemon.physics.moi import STANDARD_GRAVITY_M_S2, PendulumError, moi_about_butt_numbers
-from daemon.physics.predict import (
+from heft.daemon.physics.correction import CorrectionError, CorrectionNumbers, correction_numbers
+from heft.daemon.physics.moi import STANDARD_GRAVITY_M_S2, PendulumError, moi_about_butt_numbers
+from heft.daemon.physics.predict import (
     DEFAULT_GRIP_CG_IN,
     DEFAULT_HEAD_CG_FROM_END_IN,
     BuildError,
@@ -38,8 +38,8 @@ from daemon.physics.predict import (
     predict,
     statics_of_parts,
 )
-from daemon.physics.statics import StaticsError
-from daemon.physics.swingweight import (
+from heft.daemon.physics.statics import StaticsError
+from heft.daemon.physics.swingweight import (
     FULCRUM_14_IN,
     SwingweightLabelError,
     SwingweightRangeError,
@@ -49,13 +49,13 @@ from daemon.physics.swingweight import (
     points_from_label,
     points_in_range,
 )
-from daemon.physics.uncertainty import (
+from heft.daemon.physics.uncertainty import (
     UncertainValue,
     combine_u,
     expanded,
     net_resolution_u,
 )
-from daemon.units import (
+from heft.drivers.units import (
     UnitError,
     g_in2_to_kg_cm2,
     g_to_oz,

@@ -11,9 +11,9 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from daemon.commands._cli_io import print_error
-from daemon.config import ConfigError, StorageConfig, load_config
-from daemon.storage import StorageError
+from heft.daemon.config import ConfigError, StorageConfig, load_config
+from heft.daemon.storage import StorageError
+from heft.tui.commands._cli_io import print_error
 
 log = logging.getLogger("heft.run")
 
@@ -74,7 +74,7 @@ def _run(args: argparse.Namespace) -> int:
         return 2
     if args.db is not None:
         config = config.model_copy(update={"storage": StorageConfig(path=args.db.resolve())})
-    from daemon.service import Service
+    from heft.daemon.service import Service
 
     service = Service(config, record_dir=args.record)
     try:

@@ -7,14 +7,14 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from daemon.calibration import active_record
-from daemon.commands._cli_io import print_error, reader_went_away
-from daemon.config import ConfigError, load_config
-from daemon.records import CalibrationRecord
-from daemon.replay import ReplayError, replay
-from daemon.storage import StorageError, Store
-from drivers.base import DriverError
-from drivers.recording import RecordingError
+from heft.daemon.calibration import active_record
+from heft.daemon.config import ConfigError, load_config
+from heft.daemon.records import CalibrationRecord
+from heft.daemon.replay import ReplayError, replay
+from heft.daemon.storage import StorageError, Store
+from heft.drivers.base import DriverError
+from heft.drivers.recording import RecordingError
+from heft.tui.commands._cli_io import print_error, reader_went_away
 
 
 def register(subparsers: Any) -> None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from daemon.mqtt_topics import TopicError, check_level
+from heft.daemon.mqtt_topics import TopicError, check_level
 
 
 def _station(text: str) -> str:
@@ -44,8 +44,8 @@ def register(subparsers: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     # Imported here: the dashboard pulls in Textual, which other commands do not need.
-    from tui.app import HeftDashboard
-    from tui.mqtt_source import BrokerUrlError, MqttSource
+    from heft.tui.app import HeftDashboard
+    from heft.tui.mqtt_source import BrokerUrlError, MqttSource
 
     parser: argparse.ArgumentParser = args._parser
     try:

@@ -17,7 +17,7 @@ from collections.abc import Iterable
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-from drivers.registry import DRIVERS
+from heft.drivers.registry import DRIVERS
 
 BY_ID_DIR = "/serial/by-id/"  # udev's stable names: /dev/serial/by-id/usb-...
 # USB vendors whose boards usually run our beam firmware (MicroPython on RP2040 / ESP32-S2/S3).
@@ -104,7 +104,7 @@ def list_serial() -> list[SerialPortSummary]:
 def list_hid(backend: Any = None) -> tuple[list[HidScaleSummary], list[str]]:
     """HID scales via drivers.usb_transport; notes explain anything that could not be listed."""
     try:
-        from drivers import usb_transport
+        from heft.drivers import usb_transport
     except ImportError as err:
         return [], [f"USB HID scales not listed: {err}"]
     try:

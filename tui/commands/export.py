@@ -8,9 +8,9 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from daemon.commands._cli_io import print_error, reader_went_away
-from daemon.export import FORMATS
-from daemon.measurement import Verdict
+from heft.daemon.export import FORMATS
+from heft.daemon.measurement import Verdict
+from heft.tui.commands._cli_io import print_error, reader_went_away
 
 _TIME_FORM = "an ISO 8601 date or time, e.g. 2026-11-30 or 2026-11-30T14:00:00Z"
 
@@ -77,7 +77,7 @@ def _export(args: argparse.Namespace) -> int:
 
     db_path: Path = args.db
     if args.config is not None:
-        from daemon.config import ConfigError, load_config
+        from heft.daemon.config import ConfigError, load_config
 
         try:
             db_path = load_config(args.config).storage.path
@@ -87,7 +87,7 @@ def _export(args: argparse.Namespace) -> int:
     if not db_path.is_file():
         parser.error(f"argument --db: no database file at {db_path}")
 
-    from daemon.storage import StorageError, Store
+    from heft.daemon.storage import StorageError, Store
 
     try:
         with Store(db_path) as store:

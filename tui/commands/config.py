@@ -7,9 +7,9 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from daemon.commands._cli_io import print_error
-from daemon.config import GEOMETRY_TYPES, ConfigError, load_config
-from daemon.config_example import example_toml
+from heft.daemon.config import GEOMETRY_TYPES, ConfigError, load_config
+from heft.daemon.config_example import example_toml
+from heft.tui.commands._cli_io import print_error
 
 
 def register(subparsers: Any) -> None:

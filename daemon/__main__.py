@@ -1,5 +1,0 @@
-import sys
-
-from daemon.cli import main
-
-sys.exit(main())
