@@ -330,10 +330,10 @@ def test_bad_parts_file_names_the_key(capsys: pytest.CaptureFixture[str], tmp_pa
 
 
 def test_installed_command_end_to_end() -> None:
-    """Through ``python -m heft.tui.cli``, the same entry point as the installed script, JSON on stdout."""
+    """Through ``python -m heft.tui.cli`` (the installed script's entry point), JSON on stdout."""
     done = subprocess.run(
-        [sys.executable, "-m", "heft.tui.cli", "calc", "--weight", "412g", "--balance-point", "29.1in",
-         "--target", "D2", "--at", "36.5", "--json"],
+        [sys.executable, "-m", "heft.tui.cli", "calc", "--weight", "412g",
+         "--balance-point", "29.1in", "--target", "D2", "--at", "36.5", "--json"],
         capture_output=True, text=True, timeout=60, check=False,
     )  # fmt: skip
     assert done.returncode == 0, done.stderr

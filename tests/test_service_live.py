@@ -270,7 +270,8 @@ async def test_kill_9_during_a_burst_keeps_every_acknowledged_measurement(
     topic = Topics(root, "bench-1").measurement
     pty = PtyDevice(beam_device(plan), link=tmp_path / "beam").start()
     proc = await asyncio.create_subprocess_exec(
-        sys.executable, "-m", "heft.tui.cli", "run", "--config", str(config), "--log-level", "warning",
+        sys.executable, "-m", "heft.tui.cli", "run", "--config", str(config),
+        "--log-level", "warning",
         stdout=asyncio.subprocess.DEVNULL, stderr=asyncio.subprocess.PIPE,
     )
     try:
