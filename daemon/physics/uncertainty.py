@@ -7,7 +7,6 @@ into the expanded uncertainty U = k*u that results report (k = 2).
 from __future__ import annotations
 
 import math
-import statistics
 import sys
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
@@ -63,6 +62,8 @@ def repeatability_u(samples: Iterable[float]) -> float:
     data = list(samples)
     if len(data) < 2:
         raise ValueError("repeatability needs at least two readings")
+    import statistics  # here, not at the top: it costs ``heft calc`` ~5 ms of start-up
+
     return statistics.stdev(data) / math.sqrt(len(data))
 
 
