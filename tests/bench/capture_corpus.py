@@ -14,9 +14,20 @@ copies of any product. Each rig runs as one continuous session: placements separ
 periods, fed through one engine, as on a bench.
 
 Ground truth per placement: the static force per channel (from the club and the support
-positions) and the *limit* time: the earliest time the noise-free device output of every channel
-is within +/-1 d of its static force and stays there (until the next bump or lift-off) for the
-samples needed to average the noise down to the required resolution.
+positions) and two limits, both taken from the noise-free device outputs and both held until the
+next bump or lift-off:
+
+* the *result* limit, the one the operator cares about: the earliest time after which the result
+  computed from the latest output of every channel stays within the resolution the station needs
+  (swing weight within 0.1 point, total weight within 0.5 g, so it rounds to the whole gram a
+  spec's weight range is written in; both are parameters);
+* the *display* limit: the earliest time every channel's output is within +/-1 d of its static
+  force and stays there for the samples needed to average the noise down to the required
+  resolution (what a display-stability rule, as legal-for-trade weighing requires, waits for).
+
+Some placements are lifted early, after the result is known but before the display settles, as
+an operator in a hurry does; a placement lifted before even its result is known has no result
+limit and is not expected to be captured.
 """
 
 from __future__ import annotations
@@ -29,6 +40,8 @@ from collections import deque
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
+from heft.daemon.physics.statics import two_support_statics
+from heft.daemon.physics.swingweight import points_from_moment_g_in
 from heft.drivers.reading import Flag
 from heft.drivers.sim.physics import Club, Dynamics, Placement, TwoSupports, placement_force_g
 
@@ -36,6 +49,8 @@ SUPPORT_A_IN = 4.0  # butt-side support, inches from the butt stop
 SUPPORT_B_IN = 36.0  # head-side support
 CHANNELS = ("beam/0", "beam/1")
 RESOLUTION_D = 0.5  # required standard error of a capture, in d (the engine's default too)
+SW_RESOLUTION_POINTS = 0.1  # the result limit: swing weight known to a tenth of a point
+WEIGHT_RESOLUTION_G = 0.5  # ... and total weight rounding to the right whole gram
 
 
 @dataclass(frozen=True)
@@ -55,6 +70,7 @@ class RigSpec:
     bumps_per_placement: tuple[int, int] = (0, 0)
     bump_g: tuple[float, float] = (0.0, 0.0)
     hold_bump_chance: float = 0.15  # a knock while the club is held (tests double captures)
+    early_lift_chance: float = 0.12  # lifted after the ringing has mostly died, before it settles
 
 
 # Noise figures (per sample, rms): 0.05 g at 10/s and 0.15 g at 80/s are what DIY HX711 rigs
@@ -91,7 +107,8 @@ class Truth:
     t_off_s: float
     club: Club
     static_g: dict[str, float]
-    t_limit_s: float | None  # None: never settles before lift-off (not expected in the corpus)
+    t_result_s: float | None  # result known to resolution for good; None: lifted before that
+    t_display_s: float | None  # display settled +/-1 d (and averaged); None: lifted before that
 
 
 Sample = tuple[float, str, float, Flag]  # (arrival time, channel, grams, device flags)
@@ -237,6 +254,9 @@ def _plan(spec: RigSpec, count: int, rng: random.Random) -> list[_Mech]:
         if rng.random() < spec.hold_bump_chance:  # knocked while held, after it settled
             amp_g = spec.bump_g if spec.bump_g[1] > 0 else (5.0, 15.0)
             bumps.append((last_disturbance + 0.5 * hold_s, rng.uniform(*amp_g)))
+        if rng.random() < spec.early_lift_chance:  # lifted while the display still moves
+            t_off = last_disturbance - rng.uniform(0.15, 0.6) * (settle - dyn.ramp_s)
+            bumps = [b for b in bumps if b[0] < t_off - 0.1]
         mechs.append(_Mech(Placement(club, t, t_off, tuple(sorted(bumps))), dyn, static))
         t = t_off + rng.uniform(2.0, 3.5)
     return mechs
@@ -261,14 +281,57 @@ def _sample_times(spec: RigSpec, t_end_s: float, rng: random.Random) -> dict[str
     return out
 
 
-def _limit_time(
+def _segments(p: Placement) -> Iterator[tuple[float, float]]:
+    """The stretches between touch, each bump and lift-off: a limit must hold to the end of one."""
+    return itertools.pairwise([p.t_on_s, *(b[0] for b in p.bumps if b[0] < p.t_off_s), p.t_off_s])
+
+
+def result_of(forces_g: dict[str, float]) -> tuple[float, float]:
+    """(total weight g, swing-weight points) from the two support forces (two-support statics)."""
+    statics = two_support_statics(
+        forces_g[CHANNELS[0]], SUPPORT_A_IN, forces_g[CHANNELS[1]], SUPPORT_B_IN
+    )
+    return statics.total_weight_g, points_from_moment_g_in(statics.moment_g_in)
+
+
+def _result_limit_time(
+    m: _Mech, spec: RigSpec, times: dict[str, list[float]], mech: _Mechanics
+) -> float | None:
+    """Earliest time after which the result from the latest noise-free output of every channel
+    stays within the resolution, before the next bump or lift-off."""
+    true_w_g, true_points = result_of(m.static_g)
+    for seg_start, seg_end in _segments(m.placement):
+        events: list[tuple[float, str, float]] = []
+        for ch in CHANNELS:
+            dev = _device(spec, None)
+            for t in times[ch]:
+                if seg_start - 1.0 <= t < seg_end:  # a second before: the device's own state
+                    events.append((t, ch, dev.output(functools.partial(mech.force_g, ch), t)[0]))
+        events.sort()
+        latest: dict[str, float] = {}
+        since: float | None = None
+        for t, ch, v in events:
+            latest[ch] = v
+            if t < seg_start or len(latest) < len(CHANNELS) or sum(latest.values()) <= 0:
+                continue
+            w_g, points = result_of(latest)
+            good = (abs(points - true_points) <= SW_RESOLUTION_POINTS
+                    and abs(w_g - true_w_g) <= WEIGHT_RESOLUTION_G)  # fmt: skip
+            if not good:
+                since = None
+            elif since is None:
+                since = t
+        if since is not None:
+            return since
+    return None
+
+
+def _display_limit_time(
     m: _Mech, spec: RigSpec, times: dict[str, list[float]], mech: _Mechanics, n_req: int
 ) -> float | None:
     """Earliest time every channel's noise-free output is within +/-1 d and stays there for
     ``n_req`` samples, before the next bump or lift-off."""
-    p = m.placement
-    edges = [p.t_on_s, *(b[0] for b in p.bumps), p.t_off_s]
-    for seg_start, seg_end in itertools.pairwise(edges):
+    for seg_start, seg_end in _segments(m.placement):
         ends: list[float] = []
         for ch in CHANNELS:
             dev = _device(spec, None)
@@ -319,7 +382,8 @@ def build_session(spec: RigSpec, count: int, seed: int) -> Session:
             t_off_s=m.placement.t_off_s,
             club=m.placement.club,
             static_g=dict(m.static_g),
-            t_limit_s=_limit_time(m, spec, times, mech, n_req),
+            t_result_s=_result_limit_time(m, spec, times, mech),
+            t_display_s=_display_limit_time(m, spec, times, mech, n_req),
         )
         for k, m in enumerate(mechs)
     ]
