@@ -13,7 +13,7 @@ from tests.bench.capture_corpus import RIGS, build_session
 def test_bench_runs_on_a_small_corpus() -> None:
     # two placements on each of the first five rigs: ten placements
     result = run_bench(per_rig=2, seed=7, rigs=RIGS[:5])
-    assert set(result.rows) == {"naive", "engine", "result", "display"}
+    assert set(result.rows) == {"naive", "engine", "predict", "result", "display"}
     assert result.placements == 10
     for row in result.rows.values():
         assert len(row.outcomes) == 10

@@ -27,6 +27,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "heft.daemon.capture",
             "heft.daemon.capture_params",
             "heft.daemon.stillness",
+            "heft.daemon.settling",
             "heft.daemon.pipeline",
             "heft.daemon.specs",
             "heft.daemon.alarms",
