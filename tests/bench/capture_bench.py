@@ -26,6 +26,7 @@ import statistics
 import sys
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
+from typing import Protocol
 
 from heft.daemon.capture import Captured, CaptureEngine
 from heft.daemon.capture_params import CaptureParams
@@ -101,14 +102,28 @@ def run_engine(session: Session) -> list[Capture]:
     return caps
 
 
-def run_naive(session: Session) -> list[Capture]:
-    rule = NaiveRule(CHANNELS, session.rig.rate_hz, session.rig.division_g)
+class _Rule(Protocol):
+    def on_sample(self, channel: str, t_s: float, value_g: float) -> _RuleCapture | None: ...
+
+
+class _RuleCapture(Protocol):
+    @property
+    def t_s(self) -> float: ...
+    @property
+    def means_g(self) -> dict[str, float]: ...
+
+
+def _run_rule(session: Session, rule: _Rule) -> list[Capture]:
     caps: list[Capture] = []
     for t, ch, v, _flags in session.samples:
         got = rule.on_sample(ch, t, v)
         if got is not None:
             caps.append((got.t_s, got.means_g))
     return caps
+
+
+def run_naive(session: Session) -> list[Capture]:
+    return _run_rule(session, NaiveRule(CHANNELS, session.rig.rate_hz, session.rig.division_g))
 
 
 def run_predict(session: Session) -> list[Capture]:
@@ -117,12 +132,7 @@ def run_predict(session: Session) -> list[Capture]:
     dead_time_s = 0.5 if rig.device == "balance" else 0.15
     rule = PredictRule(CHANNELS, (SUPPORT_A_IN, SUPPORT_B_IN), rig.division_g,
                        dead_time_s=dead_time_s, rate_hz=rig.rate_hz)  # fmt: skip
-    caps: list[Capture] = []
-    for t, ch, v, _flags in session.samples:
-        got = rule.on_sample(ch, t, v)
-        if got is not None:
-            caps.append((got.t_s, got.means_g))
-    return caps
+    return _run_rule(session, rule)
 
 
 def _median(values: Sequence[float]) -> float:

@@ -9,10 +9,11 @@ empty again. No noise model, no zero tracking.
 from __future__ import annotations
 
 import math
-import statistics
 from collections import deque
 from collections.abc import Sequence
 from dataclasses import dataclass
+
+from tests.bench.placement_gate import PlacementGate
 
 
 @dataclass(frozen=True)
@@ -35,35 +36,20 @@ class NaiveRule:
     ) -> None:
         self.n = round(stable_s * rate_hz) + 1  # N readings spanning stable_s
         self.d = division_g
-        self.placed = placement_threshold_g
-        self.empty = empty_threshold_g
-        n_tare = max(1, round(tare_s * rate_hz))
+        self.gate = PlacementGate(channels, rate_hz, division_g, tare_s=tare_s,
+                                  placement_threshold_g=placement_threshold_g,
+                                  empty_threshold_g=empty_threshold_g)  # fmt: skip
         self.last: dict[str, deque[float]] = {c: deque(maxlen=self.n) for c in channels}
-        self.tare_buf: dict[str, deque[float]] = {c: deque(maxlen=n_tare) for c in channels}
-        self.tare: dict[str, float] = dict.fromkeys(channels, 0.0)
-        self.latest: dict[str, float] = dict.fromkeys(channels, 0.0)
-        self.state = "empty"  # empty | settling | holding
+        self.holding = False
 
     def on_sample(self, channel: str, t_s: float, value_g: float) -> NaiveCapture | None:
-        self.latest[channel] = value_g
-        total = sum(self.latest[c] - self.tare[c] for c in self.latest)
-        if self.state == "empty":
-            if total > self.placed:
-                self.state = "settling"
-                for c, buf in self.tare_buf.items():
-                    if buf:  # median: the first readings of the touch must not bias the tare
-                        self.tare[c] = statistics.median(buf)
-                    self.last[c].clear()
-                self.last[channel].append(value_g)
-            else:
-                self.tare_buf[channel].append(value_g)
-            return None
-        if total < self.empty:
-            self.state = "empty"
-            for buf in self.tare_buf.values():
+        event = self.gate.on_sample(channel, value_g)
+        if event == "touched":
+            for buf in self.last.values():
                 buf.clear()
-            return None
-        if self.state == "holding":
+        elif event == "lifted":
+            self.holding = False
+        if event in ("empty", "lifted") or self.holding:
             return None
         self.last[channel].append(value_g)
         means: dict[str, float] = {}
@@ -73,6 +59,6 @@ class NaiveRule:
             m = math.fsum(buf) / len(buf)
             if any(abs(v - m) > self.d for v in buf):
                 return None
-            means[c] = m - self.tare[c]
-        self.state = "holding"
+            means[c] = self.gate.net_g(c, m)
+        self.holding = True
         return NaiveCapture(t_s, means)

@@ -1,6 +1,6 @@
 """A capture that stops when the result is known: the settling model's prediction (prototype).
 
-Placement detection and tare as the fixed-window rule does them (``naive_capture``); then, every
+Placement detection and tare as the fixed-window rule does them (``placement_gate``); then, every
 ``fit_every_s`` of readings, each channel's transient since the touch is fitted
 (``heft.daemon.settling``) over two windows (from the touch, after the ramp, and the most recent
 ``recent_window_s``, which leaves a knock behind), and the result is computed from the predicted
@@ -15,13 +15,12 @@ does not fit (a knock, a lift) does not capture.
 from __future__ import annotations
 
 import math
-import statistics
-from collections import deque
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 from heft.daemon.physics.swingweight import G_IN_PER_POINT
 from heft.daemon.settling import DampedFit, fit_damped_oscillation
+from tests.bench.placement_gate import PlacementGate
 
 
 @dataclass(frozen=True)
@@ -67,15 +66,11 @@ class PredictRule:
         self.k = coverage_k
         self.residual_factor = residual_factor
         self.model_slack = model_slack
-        self.placed = placement_threshold_g
-        self.empty = empty_threshold_g
-        n_tare = max(2, round(tare_s * rate_hz))
-        self.tare_buf: dict[str, deque[float]] = {c: deque(maxlen=n_tare) for c in channels}
-        self.tare: dict[str, float] = dict.fromkeys(channels, 0.0)
-        self.noise: dict[str, float] = dict.fromkeys(channels, division_g)
-        self.latest: dict[str, float] = dict.fromkeys(channels, 0.0)
+        self.gate = PlacementGate(channels, rate_hz, division_g, tare_s=tare_s,
+                                  placement_threshold_g=placement_threshold_g,
+                                  empty_threshold_g=empty_threshold_g)  # fmt: skip
         self.samples: dict[str, list[tuple[float, float]]] = {c: [] for c in channels}
-        self.state = "empty"
+        self.holding = False
         self.t_touch = 0.0
         self.next_fit_s = 0.0
         self.previous: tuple[float, float] | None = None  # (weight g, points) of the last fit
@@ -89,7 +84,7 @@ class PredictRule:
             fit = fit_damped_oscillation([t for t, _ in part], [v for _, v in part])
             if fit is None:
                 continue
-            allowed = self.residual_factor * self.noise[channel]
+            allowed = self.residual_factor * self.gate.noise[channel]
             if fit.residual_rms > allowed + self.model_slack * fit.oscillation_rms:
                 continue
             if best is None or fit.equilibrium_u < best.equilibrium_u:
@@ -122,36 +117,21 @@ class PredictRule:
         return None
 
     def on_sample(self, channel: str, t_s: float, value_g: float) -> PredictedCapture | None:
-        self.latest[channel] = value_g
-        total = sum(self.latest[c] - self.tare[c] for c in self.channels)
-        if self.state == "empty":
-            if total > self.placed:
-                self.state = "settling"
-                for c, buf in self.tare_buf.items():
-                    if len(buf) >= 2:
-                        self.tare[c] = statistics.median(buf)
-                        floor = self.d / math.sqrt(12)  # rounding alone (GUM 4.3.7)
-                        self.noise[c] = max(statistics.stdev(buf), floor)
-                    self.samples[c] = []
-                self.t_touch = t_s
-                self.next_fit_s = t_s + self.dead_time_s + self.fit_every_s
-                self.previous = None
-                self.samples[channel].append((t_s, value_g - self.tare[channel]))
-            else:
-                self.tare_buf[channel].append(value_g)
+        event = self.gate.on_sample(channel, value_g)
+        if event == "touched":
+            for c in self.channels:
+                self.samples[c] = []
+            self.t_touch = t_s
+            self.next_fit_s = t_s + self.dead_time_s + self.fit_every_s
+            self.previous = None
+        elif event == "lifted":
+            self.holding = False
+        if event in ("empty", "lifted") or self.holding:
             return None
-        if total < self.empty:
-            self.state = "empty"
-            for buf in self.tare_buf.values():
-                buf.clear()
-            return None
-        if self.state == "holding":
-            return None
-        self.samples[channel].append((t_s, value_g - self.tare[channel]))
+        self.samples[channel].append((t_s, self.gate.net_g(channel, value_g)))
         if t_s < self.next_fit_s:
             return None
         self.next_fit_s = t_s + self.fit_every_s
         captured = self._decide(t_s)
-        if captured is not None:
-            self.state = "holding"
+        self.holding = captured is not None
         return captured
