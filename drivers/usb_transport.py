@@ -1,4 +1,4 @@
-"""USB HID scales through pyusb: the ``usb-hid://VID:PID[?serial=...]`` transport and discovery.
+"""USB HID scales through pyusb: the ``usb-hid://VID:PID[?serial=...]`` transport.
 
 ``UsbHidTransport`` finds the device, detaches the kernel's HID driver if it holds the interface
 (and re-attaches it on close), claims the interface and reads whole input reports from its
@@ -8,13 +8,10 @@ SET_REPORT control request (the usual way for scales). A read timeout is not an 
 may only report on change); a USB error is, and comes out as ``TransportError`` with the pyusb
 error chained, so the service's supervisor reconnects.
 
-``list_hid_scales`` lists HID interfaces whose report descriptor declares usage page 0x8D
-(Scales), for ``heft devices``. The report descriptor is read from Linux sysfs when possible
-(no permissions needed, nothing detached), else by a control request when no kernel driver
-holds the interface.
-
-The pyusb backend is libusb 1.0 from the ``libusb-package`` wheel unless one is passed in; tests
-and the bench simulator pass ``drivers.fake_usb.FakeBackend``.
+Discovery (``list_hid_scales``, ``report_layout``) lives in ``usb_discovery`` and the backend
+choice (``set_default_backend``) in ``usb_backend``; both are importable from here too. The
+pyusb backend is libusb 1.0 from the ``libusb-package`` wheel unless one is passed in; tests and
+the bench simulator pass ``heft.drivers.fake_usb.FakeBackend``.
 """
 
 from __future__ import annotations
@@ -23,23 +20,35 @@ import asyncio
 import contextlib
 import errno
 import logging
-import warnings
 from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any, Final
 from urllib.parse import parse_qs, urlsplit
 
-import hid_parser
 import usb.core
 import usb.util
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from heft.drivers.base import DriverConfigError, TransportError
+from heft.drivers.usb_backend import (
+    HID_CLASS,
+    SCALES_USAGE_PAGE,
+    USB_HID_SCHEME,
+    backend_for,
+    set_default_backend,
+    string_descriptor,
+)
+from heft.drivers.usb_discovery import (
+    ReportLayout,
+    UsbDeviceSummary,
+    list_hid_scales,
+    report_layout,
+)
 
 __all__ = [
+    "HID_CLASS",
     "SCALES_USAGE_PAGE",
+    "USB_HID_SCHEME",
     "ReportLayout",
     "UsbDeviceSummary",
     "UsbHidTransport",
@@ -52,43 +61,11 @@ __all__ = [
 
 log = logging.getLogger("heft.usb")
 
-USB_HID_SCHEME: Final = "usb-hid://"
-SCALES_USAGE_PAGE: Final = 0x8D
-HID_CLASS: Final = 0x03
-_HID_BOOT_SUBCLASS: Final = 1  # keyboards and mice; never a scale
 _SET_REPORT_REQUEST_TYPE: Final = 0x21  # host to device, class, interface
 _SET_REPORT: Final = 0x09
 _REPORT_TYPE_OUTPUT: Final = 0x02
-_GET_DESCRIPTOR: Final = 0x06
-_HID_REPORT_DESCRIPTOR: Final = 0x22
 _DISCONNECT_ERRNOS: Final = frozenset({errno.ENODEV, errno.EIO, errno.EPIPE, errno.ESHUTDOWN,
                                        errno.ENOENT})
-
-_default_backend: Any = None
-
-
-def set_default_backend(backend: Any) -> None:
-    """Use ``backend`` for every transport and listing not given one (None: libusb again).
-
-    For the bench simulator and demos, which drive a simulated scale through a configuration
-    that only names ``usb-hid://VID:PID``.
-    """
-    global _default_backend
-    _default_backend = backend
-
-
-def _backend(explicit: Any) -> Any:
-    if explicit is not None:
-        return explicit
-    if _default_backend is not None:
-        return _default_backend
-    import libusb_package  # imported late: loading libusb is not free and tests never need it
-
-    backend = libusb_package.get_libusb1_backend()
-    if backend is None:
-        raise TransportError("libusb 1.0 could not be loaded (libusb-package wheel); USB HID "
-                             "scales cannot be read on this machine")
-    return backend
 
 
 def _describe_usb_error(err: usb.core.USBError) -> str:
@@ -105,16 +82,6 @@ def _describe_usb_error(err: usb.core.USBError) -> str:
 
 def _is_timeout(err: usb.core.USBError) -> bool:
     return isinstance(err, usb.core.USBTimeoutError) or err.errno == errno.ETIMEDOUT
-
-
-def _string(dev: usb.core.Device, index: int) -> str:
-    """A string descriptor, or '' when the device cannot be asked (permissions, gone)."""
-    if not index:
-        return ""
-    try:
-        return str(usb.util.get_string(dev, index) or "")
-    except (usb.core.USBError, ValueError, NotImplementedError):
-        return ""
 
 
 class UsbHidTransport:
@@ -169,14 +136,14 @@ class UsbHidTransport:
             raise
 
     def _find(self) -> Any:
-        backend = _backend(self._backend_arg)
+        backend = backend_for(self._backend_arg)
         try:
             found = list(usb.core.find(find_all=True, backend=backend, idVendor=self.vid,
                                        idProduct=self.pid))
         except (usb.core.USBError, usb.core.NoBackendError) as err:
             raise TransportError(f"{self.description}: cannot list USB devices: {err}") from err
         if self.serial is not None:
-            matching = [d for d in found if _string(d, d.iSerialNumber) == self.serial]
+            matching = [d for d in found if string_descriptor(d, d.iSerialNumber) == self.serial]
             for other in found:  # reading the serial opened them; give them back
                 if other not in matching:
                     with contextlib.suppress(usb.core.USBError):
@@ -395,151 +362,3 @@ def open_usb_transport(port: str, options: Mapping[str, Any] | None = None) -> U
     return UsbHidTransport(vid, pid, opts.serial, opts.backend, interface=opts.interface,
                            read_timeout_ms=opts.read_timeout_ms,
                            write_timeout_ms=opts.write_timeout_ms)
-
-
-# -- discovery ----------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class ReportLayout:
-    """What a HID report descriptor declares: usage pages and report sizes in bytes.
-
-    Sizes include the report id byte when the descriptor numbers its reports.
-    """
-
-    usage_pages: frozenset[int]
-    input_report_bytes: dict[int | None, int] = field(default_factory=dict)
-    output_report_bytes: dict[int | None, int] = field(default_factory=dict)
-
-
-def _item_pages(items: list[Any]) -> set[int]:
-    pages: set[int] = set()
-    for item in items:
-        if isinstance(item, hid_parser.VariableItem):
-            pages.add(int(item.usage.page))
-        elif isinstance(item, hid_parser.ArrayItem):
-            pages.update(int(u.page) for u in item.usages)
-    return pages
-
-
-def report_layout(descriptor: bytes) -> ReportLayout:
-    """Parse a HID report descriptor (with the hid-parser library).
-
-    Raises:
-        ValueError: when the descriptor cannot be parsed.
-    """
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")  # compliance nits of real devices are not our call
-            rdesc = hid_parser.ReportDescriptor(list(descriptor))
-            pages: set[int] = set()
-            inputs: dict[int | None, int] = {}
-            outputs: dict[int | None, int] = {}
-            for rid in rdesc.input_report_ids:
-                pages |= _item_pages(rdesc.get_input_items(rid))
-                inputs[rid] = int(rdesc.get_input_report_size(rid).byte) + (rid is not None)
-            for rid in rdesc.output_report_ids:
-                pages |= _item_pages(rdesc.get_output_items(rid))
-                outputs[rid] = int(rdesc.get_output_report_size(rid).byte) + (rid is not None)
-    except Exception as err:  # the library raises several types on malformed input
-        raise ValueError(f"unparseable HID report descriptor: {err}") from err
-    return ReportLayout(frozenset(pages), inputs, outputs)
-
-
-@dataclass(frozen=True, slots=True)
-class UsbDeviceSummary:
-    """One HID scale (or possible scale) found on the USB bus, for ``heft devices``."""
-
-    vid: int
-    pid: int
-    serial_number: str
-    manufacturer: str
-    product: str
-    bus: int | None
-    address: int | None
-    interface: int
-    confirmed: bool
-    """True when the report descriptor was read and declares usage page 0x8D (Scales)."""
-    note: str = ""
-
-    @property
-    def port(self) -> str:
-        """The port string for the configuration (serial included when the device has one)."""
-        base = f"{USB_HID_SCHEME}{self.vid:04x}:{self.pid:04x}"
-        return f"{base}?serial={self.serial_number}" if self.serial_number else base
-
-
-def _sysfs_report_descriptor(
-    dev: Any, cfg_value: int, intf: int, sysfs_root: Path
-) -> bytes | None:
-    ports = getattr(dev, "port_numbers", None)
-    if dev.bus is None or not ports:
-        return None
-    name = f"{dev.bus}-{'.'.join(str(p) for p in ports)}:{cfg_value}.{intf}"
-    for path in sorted((sysfs_root / "bus" / "usb" / "devices" / name).glob("*/report_descriptor")):
-        with contextlib.suppress(OSError):
-            return path.read_bytes()
-    return None
-
-
-def _usb_report_descriptor(dev: Any, intf: int) -> bytes | None:
-    """Ask the device itself, only when no kernel driver holds the interface."""
-    try:
-        if dev.is_kernel_driver_active(intf):
-            return None
-        data = dev.ctrl_transfer(0x81, _GET_DESCRIPTOR, _HID_REPORT_DESCRIPTOR << 8, intf, 4096)
-        return bytes(data)
-    except (usb.core.USBError, NotImplementedError):
-        return None
-    finally:
-        with contextlib.suppress(usb.core.USBError):
-            usb.util.dispose_resources(dev)
-
-
-def list_hid_scales(
-    backend: Any = None, *, sysfs_root: Path = Path("/sys")
-) -> list[UsbDeviceSummary]:
-    """HID interfaces on the bus that are (or may be) POS scales, for ``heft devices``.
-
-    Devices whose report descriptor was read and lacks usage page 0x8D are left out; those whose
-    descriptor could not be read are listed with ``confirmed=False`` and a note saying why.
-    """
-    try:
-        devices = list(usb.core.find(find_all=True, backend=_backend(backend)))
-    except (usb.core.USBError, usb.core.NoBackendError) as err:
-        raise TransportError(f"cannot list USB devices: {err}") from err
-    found: list[UsbDeviceSummary] = []
-    for dev in devices:
-        try:
-            cfg = dev[0]
-        except (usb.core.USBError, IndexError):
-            continue
-        for intf in cfg:
-            if intf.bInterfaceClass != HID_CLASS or intf.bInterfaceSubClass == _HID_BOOT_SUBCLASS:
-                continue
-            number = intf.bInterfaceNumber
-            descriptor = _sysfs_report_descriptor(dev, cfg.bConfigurationValue, number,
-                                                  sysfs_root)
-            if descriptor is None:
-                descriptor = _usb_report_descriptor(dev, number)
-            confirmed, note = False, "report descriptor not readable (kernel driver bound)"
-            if descriptor is not None:
-                try:
-                    layout = report_layout(descriptor)
-                except ValueError as err:
-                    layout, note = None, str(err)
-                if layout is not None:
-                    if SCALES_USAGE_PAGE not in layout.usage_pages:
-                        continue
-                    confirmed, note = True, ""
-                    if layout.input_report_bytes.get(3) != 6:
-                        note = "data report layout differs from docs/protocols.md d"
-            found.append(UsbDeviceSummary(
-                vid=dev.idVendor, pid=dev.idProduct,
-                serial_number=_string(dev, dev.iSerialNumber),
-                manufacturer=_string(dev, dev.iManufacturer), product=_string(dev, dev.iProduct),
-                bus=dev.bus, address=dev.address, interface=number, confirmed=confirmed,
-                note=note))
-            with contextlib.suppress(usb.core.USBError):
-                usb.util.dispose_resources(dev)
-    return found

@@ -231,6 +231,32 @@ def scanner(rng: random.Random) -> None:
          description="three club labels scanned at a QC station")
 
 
+# --- d. USB HID point-of-sale scale ---------------------------------------------------------
+
+
+def hid_pos() -> None:
+    """A driver head on a USB HID scale, a zero sent, then the operator switches to ounces.
+
+    One chunk per interrupt transfer, as the USB transport delivers them: whole 6-byte data
+    reports [0x03, status, unit, exponent, weight LSB, weight MSB] (docs/protocols.md d), hex
+    written by hand. No seeded splitting: a report is never cut.
+    """
+    reports = [
+        (0.1, "03 02 02 ff 00 00"),  # stable at zero, 0 x 0.1 g
+        (0.2, "03 03 02 ff 3b 0b"),  # in motion, 0x0b3b = 2875 -> 287.5 g
+        (0.3, "03 03 02 ff 1a 0c"),  # in motion, 0x0c1a = 3098 -> 309.8 g
+        (0.4, "03 04 02 ff 1e 0c"),  # stable, 0x0c1e = 3102 -> 310.2 g
+        (0.6, "03 04 0b fe 7a 04"),  # stable, ounces (11), 0x047a = 1146 x 0.01 -> 11.46 oz
+        (0.7, "03 02 0b fe 00 00"),  # lifted: stable at zero, in ounces
+    ]
+    chunks = [Chunk(t, "hid-1", bytes.fromhex(hex_), "rx") for t, hex_ in reports]
+    chunks.insert(4, Chunk(0.5, "hid-1", bytes.fromhex("02 01"), "tx"))  # zero (control report)
+    header = RecordingHeader(device="hid-1", driver="hid_pos", options={}, created_utc=CREATED,
+                             binary=True, description="USB HID scale: zero, a driver head "
+                             "settling at 310.2 g, a zero request, then ounces")
+    write_recording(ROOT / "recordings" / "hid_pos.jsonl", header, chunks)
+
+
 # --- malformed input on purpose -------------------------------------------------------------
 
 
@@ -333,6 +359,7 @@ def main() -> None:
     for make in (poll_balance_continuous, poll_balance_polled, stream_balance, regex_line, beam,
                  scanner, malformed):
         make(rng)
+    hid_pos()  # last, and without the shared random generator: the files above stay as they are
 
 
 if __name__ == "__main__":

@@ -242,6 +242,18 @@ def test_scanner_bad_scans() -> None:
     assert driver.stats.frame_errors == 4
 
 
+def test_hid_pos_recording() -> None:
+    # Hand-decoded from the hex in make_recordings.hid_pos: raw x 10^exponent in the unit sent.
+    driver, out = replay("recordings/hid_pos.jsonl")
+    zero = S | Flag.AT_ZERO
+    assert_same(grams(out), [
+        (0.0, "g", zero), (287.5, "g", D), (309.8, "g", D), (310.2, "g", S),
+        (11.46 * OZ_G, "oz", S), (0.0, "oz", zero),
+    ])
+    s = driver.stats
+    assert (s.frame_errors, s.noise_bytes, s.readings, s.bytes_in) == (0, 0, 6, 36)
+
+
 def test_every_fixture_has_a_test() -> None:
     """A new recording without expectations here is a test gap: fail until it is covered.
 
@@ -249,13 +261,13 @@ def test_every_fixture_has_a_test() -> None:
     cannot drift from the tests that really read the files.
     """
     covered = set(re.findall(r'replay\("([^"]+)"\)', Path(__file__).read_text()))
-    mine = {"poll_balance", "stream_balance", "regex_line", "beam", "scanner"}
+    mine = {"poll_balance", "stream_balance", "regex_line", "beam", "scanner", "hid_pos"}
     present = {
         str(p.relative_to(FIXTURES))
         for folder in ("recordings", "malformed") for p in (FIXTURES / folder).glob("*.jsonl")
         if read_recording(p).header.driver in mine
     }
-    assert len(present) >= 12 and covered >= present, sorted(present - covered)
+    assert len(present) >= 13 and covered >= present, sorted(present - covered)
 
 
 def test_reply_objects_carry_device_and_raw() -> None:

@@ -1,6 +1,8 @@
-"""Property tests: bad bytes never raise out of a driver, and a corrupt beam frame never reads.
+"""Property tests: chunking never changes what a line driver reads; corrupt beam frames never read.
 
-Example budgets are kept small so the whole file runs in a few seconds.
+That ``feed`` never raises on arbitrary bytes is part of the driver contract and is fuzzed for
+every registered driver in tests/test_drivers_contract.py. Example budgets are kept small so the
+whole file runs in a few seconds.
 """
 
 from __future__ import annotations
@@ -8,75 +10,46 @@ from __future__ import annotations
 import functools
 import operator
 from pathlib import Path
-from typing import Any
 
 import pytest
-from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from heft.drivers.base import Driver
+from heft.drivers.base import LineDriver
 from heft.drivers.firmware.heft_beam import framing  # the board's own framing (runs on CPython)
 from heft.drivers.protocols.beam import BeamDriver
 from heft.drivers.protocols.beam import checksum as beam_checksum
-from heft.drivers.reading import DriverOutput, Reading
+from heft.drivers.reading import DriverOutput
 from heft.drivers.recording import read_recording
-from heft.drivers.registry import create_driver
+from heft.drivers.registry import available_drivers, create_driver, get_driver_class
+from tests.test_drivers_contract import any_bytes, essence
 
 FIXTURES = Path(__file__).resolve().parent.parent / "hardware_fixtures"
-
-DRIVERS: list[tuple[str, dict[str, Any]]] = [
-    ("poll_balance", {}),
-    ("poll_balance", {"mode": "continuous"}),
-    ("stream_balance", {}),
-    ("regex_line",
-     {"pattern": r"(?P<stable>[SN])\s+(?P<value>[+-]?\s*[0-9.]+)\s*(?P<unit>[a-z]+)"}),
-    ("beam", {}),
-    ("scanner", {"pattern": "LC-[0-9]{5}"}),
-]
-FAST = settings(max_examples=150, deadline=None,
-                suppress_health_check=[HealthCheck.function_scoped_fixture])
+FAST = settings(max_examples=150, deadline=None)
 
 
-def essence(outputs: list[DriverOutput]) -> list[tuple[object, ...]]:
-    return [
-        (o.channel, o.value, o.device_unit, o.flags, o.raw, o.seq, o.device_time_s)
-        if isinstance(o, Reading) else (repr(o),)
-        for o in outputs
-    ]
+def frames_the_stream(driver: str) -> bool:
+    """A line driver frames the byte stream itself, so where the chunks end must not matter.
+
+    A report driver (``hid_pos``) is handed one whole USB report per ``feed`` by its transport:
+    cutting a report is not something its input can do.
+    """
+    return issubclass(get_driver_class(driver), LineDriver)
 
 
-def fresh(name: str, options: dict[str, Any]) -> Driver:
-    return create_driver(name, "fuzz-1", options)
-
-
-# Bytes that look like frames make the fuzzing reach the parsers, not just the framing.
-frame_alphabet = st.sampled_from(list(b"SDIZT+-,.0123456789 gkozlb#$*!ABCDEF\r\n\x00\xff"))
-framey_bytes = st.lists(frame_alphabet, max_size=400).map(bytes)
-any_bytes = st.binary(max_size=400)
-
-
-@pytest.mark.parametrize(("name", "options"), DRIVERS, ids=[f"{n}-{i}" for i, (n, _) in
-                                                              enumerate(DRIVERS)])
-@FAST
-@given(chunks=st.lists(st.one_of(any_bytes, framey_bytes), max_size=8))
-def test_random_bytes_never_raise(name: str, options: dict[str, Any], chunks: list[bytes]) -> None:
-    driver = fresh(name, options)
-    readings = 0
-    for i, chunk in enumerate(chunks):
-        out = driver.feed(chunk, float(i))
-        readings += sum(isinstance(o, Reading) for o in out)
-        for o in out:
-            if isinstance(o, Reading):
-                assert o.raw in b"".join(chunks)
-    assert driver.stats.readings == readings
-    assert driver.stats.bytes_in == sum(map(len, chunks))
-
-
+# Every recording of every registered driver that frames its stream.
 FIXTURE_FILES = sorted(
     str(p.relative_to(FIXTURES)) for folder in ("recordings", "malformed")
     for p in (FIXTURES / folder).glob("*.jsonl")
-    if read_recording(p).header.driver in {n for n, _ in DRIVERS}
+    if (driver := read_recording(p).header.driver) in available_drivers()
+    and frames_the_stream(driver)
 )
+
+
+def test_every_registered_line_driver_is_fuzzed_for_chunking() -> None:
+    line_drivers = {n for n in available_drivers() if frames_the_stream(n)}
+    fuzzed = {read_recording(FIXTURES / f).header.driver for f in FIXTURE_FILES}
+    assert fuzzed == line_drivers, f"add a recording for {sorted(line_drivers - fuzzed)}"
 
 
 @pytest.mark.parametrize("name", FIXTURE_FILES)

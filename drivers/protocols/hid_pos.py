@@ -72,32 +72,6 @@ AMBIGUOUS_UNIT_CODES: Final[dict[int, str]] = {
 }
 """Unit codes defined by the usage tables whose mass heft will not guess."""
 
-STATUS_NAMES: Final[dict[str, ScaleStatus]] = {
-    "fault": ScaleStatus.FAULT,
-    "zero": ScaleStatus.STABLE_AT_ZERO,
-    "motion": ScaleStatus.IN_MOTION,
-    "stable": ScaleStatus.STABLE,
-    "under": ScaleStatus.UNDER_ZERO,
-    "over": ScaleStatus.OVER_WEIGHT,
-    "needs_calibration": ScaleStatus.NEEDS_CALIBRATION,
-    "needs_zero": ScaleStatus.NEEDS_REZERO,
-}
-"""Short names for statuses, used by fixtures and the simulated scale."""
-
-
-def unit_code_for(unit: str) -> int:
-    """The data-report unit code for a unit name such as ``'g'`` or ``'oz'``.
-
-    Raises:
-        ValueError: naming the unit and the supported ones.
-    """
-    for code, name in UNIT_CODES.items():
-        if name == unit:
-            return code
-    raise ValueError(f"unit {unit!r} has no HID scale unit code; expected one of "
-                     f"{', '.join(UNIT_CODES.values())}")
-
-
 @dataclass(frozen=True, slots=True)
 class ScaleDataReport:
     """One decoded data report, still in the device's unit."""
@@ -146,12 +120,6 @@ def decode_data_report(report: bytes) -> ScaleDataReport:
     if unit_code not in UNIT_CODES:
         raise FrameError(f"unit code {unit_code}, expected 1..12")
     return ScaleDataReport(scale_status, unit_code, exponent, raw_weight)
-
-
-def encode_data_report(status: ScaleStatus, unit_code: int, exponent: int,
-                       raw_weight: int) -> bytes:
-    """Build a data report (for simulated scales); raises ``struct.error`` when out of range."""
-    return _DATA_REPORT.pack(DATA_REPORT_ID, int(status), unit_code, exponent, raw_weight)
 
 
 def control_report(*, zero: bool = True, enforced_zero_return: bool = False) -> bytes:

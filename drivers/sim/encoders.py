@@ -8,9 +8,7 @@ the display shows.
 from __future__ import annotations
 
 from decimal import Decimal
-
-# One implementation of the CRC-16/CCITT-FALSE check, shared with the host-side parser.
-from heft.drivers.protocols.beam import checksum as beam_checksum
+from typing import Final
 
 CRLF = b"\r\n"
 LF = b"\n"
@@ -112,13 +110,31 @@ def template_line(
 
 BEAM_PROTOCOL = "heft-beam/1"
 
+# CRC-16/CCITT-FALSE, as the README's beam protocol section specifies it: polynomial 0x1021,
+# initial value 0xFFFF, no reflection, no final XOR (CRC catalogue check value 0x29B1 for
+# b"123456789"). Computed here bit by bit rather than taken from the host's parser, so a wrong
+# parameter on either side shows up as a disagreement in the tests instead of being mirrored.
+_CRC16_POLY: Final = 0x1021
+_CRC16_INIT: Final = 0xFFFF
+
+
+def crc16_ccitt_false(data: bytes) -> int:
+    """CRC-16/CCITT-FALSE of ``data``, most significant bit first."""
+    crc = _CRC16_INIT
+    for byte in data:
+        crc ^= byte << 8
+        for _ in range(8):
+            crc = ((crc << 1) ^ _CRC16_POLY) if crc & 0x8000 else crc << 1
+            crc &= 0xFFFF
+    return crc
+
 
 def beam_line(lead: str, body: str) -> bytes:
     """``<lead><body>*HHHH\\n``: the CRC-16 check in four upper-case hex digits."""
     if lead not in ("#", "$"):
         raise ValueError(f"beam lines start with '#' or '$', not {lead!r}")
     raw = body.encode("ascii")
-    return lead.encode("ascii") + raw + b"*" + f"{beam_checksum(raw):04X}".encode("ascii") + LF
+    return lead.encode("ascii") + raw + b"*" + f"{crc16_ccitt_false(raw):04X}".encode("ascii") + LF
 
 
 def beam_hello(*, firmware: str, channels: int, rate_hz: int, bits: int, serial: str) -> bytes:

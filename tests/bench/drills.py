@@ -477,8 +477,9 @@ def _hid_corpus() -> FuzzCorpus:
 
 
 def fuzz_corpora() -> list[FuzzCorpus]:
+    # Text recordings only: a binary one (hid_pos) is whole reports, fuzzed by _hid_corpus.
     corpora = [_line_corpus(p) for p in sorted((REPO / "hardware_fixtures/recordings").glob(
-        "*.jsonl"))]
+        "*.jsonl")) if not read_recording(p).header.binary]
     corpora.append(_hid_corpus())
     return corpora
 
