@@ -18,7 +18,10 @@ FOLDERS = {"daemon": "heft.daemon", "drivers": "heft.drivers", "tui": "heft.tui"
 
 # (layer name, module prefixes), bottom first. The longest matching prefix decides the layer.
 LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("readings and units", ("heft.drivers.reading", "heft.drivers.units")),
+    (
+        "readings and units",
+        ("heft.drivers.reading", "heft.drivers.units", "heft.drivers.validation"),
+    ),
     ("drivers", ("heft.drivers",)),
     (
         "measuring core",
