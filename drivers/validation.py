@@ -41,6 +41,7 @@ def problem_lines(
     noun: str = "field",
     top: str = "(top level)",
     show_tags: bool = False,
+    toml_paths: bool = False,
     first_only: bool = False,
 ) -> list[str]:
     """One ``path: expected (got X)`` line per problem, unknown keys first.
@@ -52,6 +53,9 @@ def problem_lines(
         noun: what a key is called in "unknown field" ("option" for driver options).
         top: the path written for a problem with the input as a whole.
         show_tags: keep a tagged union's tag in the path (``calibrate_span.mass_g``).
+        toml_paths: name keys as a TOML file writes them: ``shaft.mass``, ``[[extra]] #1 at``,
+            an unknown key as ``[grip]: unknown key 'weigth'`` (at the top level without a
+            table), a value that is not a table as "must be a table".
         first_only: only the first line (callers that report one problem).
     """
     lines: list[str] = []
@@ -61,11 +65,26 @@ def problem_lines(
         if isinstance(ctx_err, FieldProblems):
             lines.extend(f"{path}: {message}" for path, message in ctx_err.problems)
         else:
-            path, holder, at = _walk(schema, tuple(e["loc"]), show_tags)
-            lines.append(f"{path or top}: {_expected(e, holder, at, noun)}")
+            lines.append(_line(e, schema, noun, top, show_tags, toml_paths))
         if first_only:
             return lines[:1]
     return lines
+
+
+def _line(
+    e: ErrorDetails, schema: Any, noun: str, top: str, show_tags: bool, toml_paths: bool
+) -> str:
+    keys, holder, at = _walk(schema, tuple(e["loc"]), show_tags)
+    kind = e["type"]
+    if toml_paths and kind == "extra_forbidden":
+        # TOML names a table by its header: the unknown key is named inside it.
+        hint = _unknown(str(keys[-1]), _fields_of(holder), noun).partition(";")[2]
+        table = _toml_table(keys[:-1])
+        return f"{table + ': ' if table else ''}unknown {noun} {str(keys[-1])!r};{hint}"
+    path = _toml_path(keys) if toml_paths else _dotted(keys)
+    if toml_paths and kind == "model_type":
+        return f"{path or top}: {_with_got('must be a table', e)}"
+    return f"{path or top}: {_expected(e, holder, at, noun)}"
 
 
 def _expected(e: ErrorDetails, holder: Any, at: Any, noun: str) -> str:
@@ -83,11 +102,16 @@ def _expected(e: ErrorDetails, holder: Any, at: Any, noun: str) -> str:
     msg = str(e["msg"])
     for prefix in _MESSAGE_PREFIXES:
         msg = msg.removeprefix(prefix)
+    return _with_got(msg, e)
+
+
+def _with_got(msg: str, e: ErrorDetails) -> str:
+    """``msg (got X)``, unless X is the whole input or a table, or the message quotes it."""
     got = e.get("input")
     if not e["loc"] or isinstance(got, dict | list | tuple | BaseModel):
-        return msg  # the whole input, or a table: the path says which
+        return msg  # the path says which
     shown = repr(got)
-    if kind in ("value_error", "assertion_error") and shown in msg:
+    if e["type"] in ("value_error", "assertion_error") and shown in msg:
         return msg  # heft's own validator already quotes it
     if len(shown) > _GOT_MAX_CHARS:
         shown = shown[: _GOT_MAX_CHARS - 3] + "..."
@@ -104,11 +128,14 @@ def _unknown(typed: str, known: list[str], noun: str) -> str:
     return f"unknown {noun}; there are none here"
 
 
-def _walk(schema: Any, loc: tuple[int | str, ...], show_tags: bool) -> tuple[str, Any, Any]:
-    """The path as written in the input; the type holding its last key (which names the valid
-    keys beside an unknown one); the type at the end of the path. Follows the schema beside the
-    path to know which items are tagged-union tags or union member labels rather than keys."""
-    parts: list[str] = []
+def _walk(
+    schema: Any, loc: tuple[int | str, ...], show_tags: bool
+) -> tuple[list[int | str], Any, Any]:
+    """The keys and indexes of the path as written in the input; the type holding its last key
+    (it names the valid keys beside an unknown one); the type at the end of the path. Follows
+    the schema beside the path to know which items are tagged-union tags or union member
+    labels rather than keys."""
+    keys: list[int | str] = []
     tp: Any = schema
     holder: Any = None
     for item in loc:
@@ -119,8 +146,33 @@ def _walk(schema: Any, loc: tuple[int | str, ...], show_tags: bool) -> tuple[str
             holder, tp = tp, _child(tp, item)
         if kind == "label" or (kind == "tag" and not show_tags):
             continue  # a plain union names the member it tried ("float", "str")
-        parts.append(f"[{item}]" if isinstance(item, int) else f".{item}" if parts else item)
-    return "".join(parts), holder, tp
+        keys.append(item)
+    return keys, holder, tp
+
+
+def _dotted(keys: Sequence[int | str]) -> str:
+    """``devices[0].serial.parity``."""
+    text = ""
+    for key in keys:
+        text += f"[{key}]" if isinstance(key, int) else f".{key}" if text else str(key)
+    return text
+
+
+def _toml_path(keys: Sequence[int | str]) -> str:
+    """``shaft.mass``; inside an array of tables ``[[extra]] #1 at`` (counted from 1)."""
+    for i, key in enumerate(keys):
+        if isinstance(key, int):
+            rest = _dotted(keys[i + 1 :])
+            head = f"[[{_dotted(keys[:i])}]] #{key + 1}"
+            return f"{head} {rest}" if rest else head
+    return _dotted(keys)
+
+
+def _toml_table(keys: Sequence[int | str]) -> str:
+    """The header of the table at ``keys``: ``[grip]``, ``[[extra]] #1``; empty at the top."""
+    if not keys or isinstance(keys[-1], int):
+        return _toml_path(keys)
+    return f"[{_toml_path(keys)}]"
 
 
 def _child(tp: Any, item: int | str) -> Any:

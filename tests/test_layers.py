@@ -27,6 +27,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
         "measuring core",
         (
             "heft.daemon.physics",
+            "heft.daemon.calc",
             "heft.daemon.capture",
             "heft.daemon.capture_params",
             "heft.daemon.stillness",
