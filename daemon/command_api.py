@@ -9,6 +9,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
+from heft.drivers.validation import problem_lines
+
 
 class _Cmd(BaseModel):
     model_config = ConfigDict(frozen=True, extra="forbid")
@@ -112,6 +114,5 @@ def parse_command(payload: bytes | str) -> Command | Reply:
     try:
         return _COMMAND_ADAPTER.validate_json(payload)
     except ValidationError as err:
-        first = err.errors()[0]
-        where = ".".join(str(p) for p in first["loc"]) or "payload"
-        return Reply(ok=False, message=f"bad command: {where}: {first['msg']}")
+        first = problem_lines(err, Command, top="payload", show_tags=True, first_only=True)[0]
+        return Reply(ok=False, message=f"bad command: {first}")

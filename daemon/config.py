@@ -20,12 +20,10 @@ the field path (``geometry.position_b_in``) and the expected form, one line per 
 
 from __future__ import annotations
 
-import difflib
 import sys
 import tomllib
-import types
 from pathlib import Path
-from typing import Annotated, Any, Literal, Union, get_args, get_origin
+from typing import Annotated, Any, Literal
 
 from pydantic import (
     BaseModel,
@@ -41,6 +39,8 @@ from heft.daemon.capture_params import CaptureParams
 from heft.daemon.mqtt_settings import MqttSettings
 from heft.daemon.physics.swingweight import points_from_label
 from heft.drivers.units import UnitError, parse_quantity
+from heft.drivers.validation import FieldProblems as _FieldProblem
+from heft.drivers.validation import problem_lines as validation_problem_lines
 
 NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
 CHANNEL_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*/[0-9]+$"
@@ -402,117 +402,9 @@ def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, str]]:
     ]
 
 
-class _FieldProblem(ValueError):
-    """Cross-field problems that know their own paths (raised inside a model validator)."""
-
-    def __init__(self, problems: list[tuple[str, str]]) -> None:
-        super().__init__("; ".join(f"{path}: {message}" for path, message in problems))
-        self.problems = problems
-
-
-def _format_loc(loc: tuple[int | str, ...]) -> str:
-    parts: list[str] = []
-    for i, item in enumerate(loc):
-        if isinstance(item, int):
-            parts.append(f"[{item}]")
-            continue
-        # A discriminated union puts the tag in the path (geometry.two_support.x): drop it.
-        if i > 0 and loc[i - 1] == "geometry" and item in GEOMETRY_TYPES:
-            continue
-        # Functions in the path (BeforeValidator wrappers) appear as 'function-before[...]'.
-        if item.startswith("function-"):
-            continue
-        parts.append(item if not parts else f".{item}")
-    return "".join(parts) or "(top level)"
-
-
-def _expected(err: Any) -> str:
-    msg = str(err["msg"])
-    for prefix in ("Value error, ", "Assertion failed, "):
-        if msg.startswith(prefix):
-            msg = msg[len(prefix) :]
-    kind = err["type"]
-    if kind == "missing":
-        return "is required"
-    if kind == "extra_forbidden":
-        return _unknown_field(tuple(err["loc"]))
-    if kind == "union_tag_invalid" or kind == "union_tag_not_found":
-        return f"'type' must be one of {', '.join(GEOMETRY_TYPES)}"
-    got = err.get("input")
-    if kind not in ("value_error",) and got is not None and not isinstance(got, dict | list):
-        return f"{msg} (got {got!r})"
-    return msg
-
-
-def _unknown_field(loc: tuple[int | str, ...]) -> str:
-    """'unknown field', with the nearest known name (difflib) or the known names."""
-    known = _fields_at(loc[:-1])
-    typed = str(loc[-1])
-    near = difflib.get_close_matches(typed, known, n=1, cutoff=0.6)
-    if near:
-        return f"unknown field; did you mean {near[0]!r}?"
-    if known:
-        return f"unknown field; expected one of {', '.join(known)}"
-    return "unknown field"
-
-
-def _fields_at(loc: tuple[int | str, ...]) -> list[str]:
-    """Field names of the config table at ``loc`` (empty when it is not a model)."""
-    tp: Any = StationConfig
-    for item in loc:
-        if isinstance(item, str) and item.startswith("function-"):
-            continue
-        tp, consumed = _unwrap(tp, item)
-        if consumed:  # the item was a tagged union's tag (geometry.two_support...)
-            continue
-        if isinstance(tp, type) and issubclass(tp, BaseModel):
-            field = tp.model_fields.get(str(item))
-            if field is None:
-                return []
-            tp = field.annotation
-        elif get_origin(tp) is list:
-            tp = get_args(tp)[0]
-        elif get_origin(tp) is dict:
-            tp = get_args(tp)[1]
-        else:
-            return []
-    tp, _ = _unwrap(tp, None)
-    if isinstance(tp, type) and issubclass(tp, BaseModel):
-        return list(tp.model_fields)
-    return []
-
-
-def _unwrap(tp: Any, tag: int | str | None) -> tuple[Any, bool]:
-    """Strip Annotated and Optional; pick a tagged union's member by its ``type`` tag.
-
-    Returns the type and whether ``tag`` picked a union member (and so is used up).
-    """
-    while get_origin(tp) is Annotated:
-        tp = get_args(tp)[0]
-    members = [a for a in get_args(tp) if a is not type(None)] if _is_union(tp) else []
-    if len(members) == 1:
-        return _unwrap(members[0], tag)
-    for m in members:
-        tagged = isinstance(m, type) and issubclass(m, BaseModel) and "type" in m.model_fields
-        if tagged and tag in get_args(m.model_fields["type"].annotation):
-            return m, True
-    return tp, False
-
-
-def _is_union(tp: Any) -> bool:
-    return get_origin(tp) in (Union, types.UnionType)
-
-
 def problem_lines(err: ValidationError) -> list[str]:
     """Every problem, one per line: the field path and the expected form; unknown keys first."""
-    lines: list[str] = []
-    for e in sorted(err.errors(), key=lambda e: e["type"] != "extra_forbidden"):
-        ctx_err = e.get("ctx", {}).get("error")
-        if isinstance(ctx_err, _FieldProblem):
-            lines.extend(f"{path}: {message}" for path, message in ctx_err.problems)
-        else:
-            lines.append(f"{_format_loc(tuple(e['loc']))}: {_expected(e)}")
-    return lines
+    return validation_problem_lines(err, StationConfig)
 
 
 def format_validation_error(err: ValidationError) -> str:
@@ -531,10 +423,9 @@ def check_drivers(config: StationConfig) -> None:
             try:
                 SerialSettings.model_validate(device.transport_options)
             except ValidationError as err:
-                first = err.errors()[0]
-                where = ".".join(str(p) for p in first["loc"])
-                field = "baudrate" if where == "baudrate" else f"serial.{where}"
-                raise ConfigError(f"devices[{i}].{field}: {_expected(first)}") from None
+                line = validation_problem_lines(err, SerialSettings, first_only=True)[0]
+                field = line if line.startswith("baudrate:") else f"serial.{line}"
+                raise ConfigError(f"devices[{i}].{field}") from None
         try:
             cls = get_driver_class(device.driver)
         except DriverConfigError as err:

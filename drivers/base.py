@@ -35,6 +35,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from heft.drivers import units
 from heft.drivers.reading import DriverOutput, Flag, Reading, ValueKind
+from heft.drivers.validation import problem_lines
 
 log = logging.getLogger("heft.drivers")
 
@@ -163,17 +164,7 @@ class LineOptions(DriverOptions):
 
 def describe_options_error(err: ValidationError, model: type[BaseModel]) -> str:
     """One readable clause per failing option: its name, what was expected, what was given."""
-    parts: list[str] = []
-    for item in err.errors():
-        option = ".".join(str(p) for p in item["loc"]) or "(options)"
-        if item["type"] == "extra_forbidden":
-            valid = ", ".join(sorted(model.model_fields)) or "none"
-            parts.append(f"unknown option {option!r} (valid options: {valid})")
-        elif item["type"] == "missing":
-            parts.append(f"option {option!r} is required")
-        else:
-            parts.append(f"option {option!r}: {item['msg']} (got {item.get('input')!r})")
-    return "; ".join(parts)
+    return "; ".join(problem_lines(err, model, noun="option", top="(options)"))
 
 
 class Driver(abc.ABC):

@@ -36,6 +36,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from heft.drivers.base import Driver, TransportError
 from heft.drivers.reading import DriverOutput
 from heft.drivers.transport import Transport
+from heft.drivers.validation import problem_lines
 
 FORMAT_NAME: Final = "heft-recording"
 FORMAT_VERSION: Final = 1
@@ -173,19 +174,19 @@ def _parse_header(line: str, source: str) -> RecordingHeader:
     try:
         return RecordingHeader.model_validate(raw)
     except ValidationError as err:
-        raise RecordingError(f"{source}:1: bad header: {_first_error(err)}") from None
+        detail = _first_error(err, RecordingHeader)
+        raise RecordingError(f"{source}:1: bad header: {detail}") from None
 
 
-def _first_error(err: ValidationError) -> str:
-    e = err.errors()[0]
-    return f"{'.'.join(map(str, e['loc'])) or 'line'}: {e['msg']}"
+def _first_error(err: ValidationError, model: type[BaseModel]) -> str:
+    return problem_lines(err, model, top="line", first_only=True)[0]
 
 
 def _parse_chunk(line: str, source: str, number: int) -> Chunk:
     try:
         item = _ChunkLine.model_validate_json(line)
     except ValidationError as err:
-        raise RecordingError(f"{source}:{number}: {_first_error(err)}") from None
+        raise RecordingError(f"{source}:{number}: {_first_error(err, _ChunkLine)}") from None
     present = [k for k in _DATA_KEYS if getattr(item, k) is not None]
     if len(present) != 1:
         raise RecordingError(

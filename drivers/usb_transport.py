@@ -44,6 +44,7 @@ from heft.drivers.usb_discovery import (
     list_hid_scales,
     report_layout,
 )
+from heft.drivers.validation import problem_lines
 
 __all__ = [
     "HID_CLASS",
@@ -355,9 +356,7 @@ def open_usb_transport(port: str, options: Mapping[str, Any] | None = None) -> U
     try:
         opts = _UsbOptions.model_validate({**query, **dict(options or {})})
     except ValidationError as err:
-        detail = "; ".join(
-            f"option {'.'.join(map(str, e['loc']))!r}: {e['msg']} (got {e.get('input')!r})"
-            for e in err.errors())
+        detail = "; ".join(problem_lines(err, _UsbOptions, noun="option", top="(options)"))
         raise DriverConfigError(f"port {port!r}: {detail}") from None
     return UsbHidTransport(vid, pid, opts.serial, opts.backend, interface=opts.interface,
                            read_timeout_ms=opts.read_timeout_ms,

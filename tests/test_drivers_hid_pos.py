@@ -123,7 +123,7 @@ def test_fixture_event_needs_report_or_unplug(tmp_path: Path) -> None:
     seq = tmp_path / "sequences" / "bad.json"
     seq.write_text(json.dumps({"format": "heft-usb-sequence", "version": 1,
                                "device": "fernbrake-ps5", "events": [{"t": 0.0}]}))
-    with pytest.raises(FixtureError, match=r"events\.0.*exactly one of 'rx'"):
+    with pytest.raises(FixtureError, match=r"events\[0\]: .*exactly one of 'rx'"):
         load_sequence(seq)
 
 

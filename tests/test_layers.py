@@ -18,12 +18,16 @@ FOLDERS = {"daemon": "heft.daemon", "drivers": "heft.drivers", "tui": "heft.tui"
 
 # (layer name, module prefixes), bottom first. The longest matching prefix decides the layer.
 LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("readings and units", ("heft.drivers.reading", "heft.drivers.units")),
+    (
+        "readings and units",
+        ("heft.drivers.reading", "heft.drivers.units", "heft.drivers.validation"),
+    ),
     ("drivers", ("heft.drivers",)),
     (
         "measuring core",
         (
             "heft.daemon.physics",
+            "heft.daemon.calc",
             "heft.daemon.capture",
             "heft.daemon.capture_params",
             "heft.daemon.stillness",

@@ -20,6 +20,8 @@ from pydantic import (
     model_validator,
 )
 
+from heft.drivers.validation import problem_lines
+
 FORMAT_VERSION: Final = 1
 DEVICE_FORMAT: Final = "heft-usb-device"
 SEQUENCE_FORMAT: Final = "heft-usb-sequence"
@@ -181,8 +183,7 @@ def _validated(model: type[_M], data: Any, source: str) -> _M:
     try:
         return model.model_validate(data)
     except ValidationError as err:
-        detail = "; ".join(f"{'.'.join(map(str, e['loc'])) or '(top)'}: {e['msg']}"
-                           for e in err.errors())
+        detail = "; ".join(problem_lines(err, model, top="(top)"))
         raise FixtureError(f"{source}: {detail}") from None
 
 

@@ -17,6 +17,8 @@ from typing import Annotated, Any, Final, Literal, TypeVar
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
+from heft.drivers.validation import problem_lines
+
 SPEC_VERSION: Final = 1
 # Found through the package (importlib.resources), so an installed wheel has them too.
 DEFINITIONS_DIR: Final[Traversable] = resources.files(__package__) / "definition_files"
@@ -146,9 +148,8 @@ def parse_definition(data: Any, *, source: str = "<definition>") -> AnyDefinitio
     try:
         return _ADAPTER.validate_python(data)
     except ValidationError as err:
-        first = err.errors()[0]
-        where = ".".join(str(p) for p in first["loc"][1:]) or "(top)"
-        raise DefinitionError(f"{source}: field {where}: {first['msg']}") from err
+        first = problem_lines(err, DeviceDefinition, top="(top)", first_only=True)[0]
+        raise DefinitionError(f"{source}: field {first}") from err
 
 
 def load_definition(path: str | Path | Traversable) -> AnyDefinition:
