@@ -132,7 +132,7 @@ async def test_measurement_over_tls_with_password(
         ):
             m = make_measurement(1)
             store.add_measurement(m)
-            bus.publish(MeasurementCaptured(m))
+            bus.publish(MeasurementCaptured(measurement=m))
             await wait_until(lambda: bool(got.messages), what="measurement over TLS")
         assert Measurement.model_validate_json(got.payloads(link.topics.measurement)[0]) == m
 
