@@ -12,12 +12,15 @@ from __future__ import annotations
 import argparse
 import os
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from pydantic import SecretStr
 
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
 from heft.daemon.mqtt_topics import TopicError, check_level
+
+if TYPE_CHECKING:
+    from heft.tui.mqtt_source import MqttSource
 
 PASSWORD_ENV = "HEFT_MQTT_PASSWORD"
 
@@ -99,20 +102,26 @@ def settings_from_args(args: argparse.Namespace) -> MqttSettings:
     return settings.model_copy(update=update)
 
 
-def run(args: argparse.Namespace) -> int:
-    # Imported here: the dashboard pulls in Textual, which other commands do not need.
-    from heft.tui.app import HeftDashboard
+def build_source(args: argparse.Namespace) -> MqttSource:
+    """The dashboard's event source for the parsed options; a bad option exits with a message."""
     from heft.tui.mqtt_source import BrokerUrlError, MqttSource
 
     parser: argparse.ArgumentParser = args._parser
+    if args.tls_cert is None and args.tls_key is not None:
+        parser.error("--tls-key: needs --tls-cert")
     try:
         settings = settings_from_args(args)
     except BrokerUrlError as err:
         parser.error(f"--broker: {err}")
-    except OSError as err:
+    except (OSError, UnicodeDecodeError) as err:
         parser.error(f"--password-file: {err}")
-    if args.tls_cert is None and args.tls_key is not None:
-        parser.error("--tls-key: needs --tls-cert")
-    source = MqttSource(settings, args.station, commands_enabled=args.commands)
+    return MqttSource(settings, args.station, commands_enabled=args.commands)
+
+
+def run(args: argparse.Namespace) -> int:
+    # Imported here: the dashboard pulls in Textual, which other commands do not need.
+    from heft.tui.app import HeftDashboard
+
+    source = build_source(args)
     HeftDashboard(source, station=args.station, bell=args.bell).run()
     return 0
