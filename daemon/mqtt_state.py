@@ -29,7 +29,7 @@ from heft.daemon.events import (
     station_of,
 )
 from heft.daemon.mqtt_topics import TopicError
-from heft.daemon.wire import ActiveAlarms, Message, Outgoing, WireCodec
+from heft.daemon.wire import ActiveAlarms, Outbound, Outgoing, WireCodec
 
 log = logging.getLogger(__name__)
 
@@ -178,7 +178,7 @@ class StatePublisher:
                 async with asyncio.timeout(timeout):
                     await self._changed.wait()
 
-    def _encode(self, message: Message, now: datetime) -> Outgoing | None:
+    def _encode(self, message: Outbound, now: datetime) -> Outgoing | None:
         """Encode; a device-supplied name that cannot be a topic level is logged once, skipped."""
         try:
             return self._codec.encode(message, now_utc=now)

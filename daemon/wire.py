@@ -110,7 +110,10 @@ class StationStatus:
     online: bool
 
 
-Message: TypeAlias = Event | ActiveAlarms | StationStatus | Reply
+# What a station publishes through the codec, and what a consumer decodes (replies included:
+# a reply goes to the topic the command asked for, so the command handler publishes it itself).
+Outbound: TypeAlias = Event | ActiveAlarms | StationStatus
+Message: TypeAlias = Outbound | Reply
 
 # Payload name (``TopicSpec.payload``) -> the model whose JSON Schema documents it.
 PAYLOAD_MODELS: Final[dict[str, type[BaseModel]]] = {
@@ -157,7 +160,7 @@ class WireCodec:
 
     # ------------------------------------------------------------------ encode
 
-    def encode(self, message: Message, *, now_utc: datetime | None = None) -> Outgoing:
+    def encode(self, message: Outbound, *, now_utc: datetime | None = None) -> Outgoing:
         """The publish for one message; ``now_utc`` stamps events that carry no time of their own.
 
         Raises TopicError when a name in the message cannot be a topic level.
@@ -189,7 +192,7 @@ class WireCodec:
             topic = Topics(self.root, message.station).status
             qos, retain = _DELIVERY[STATUS]
             return Outgoing(topic, (ONLINE if message.online else OFFLINE).encode(), qos, retain)
-        raise TypeError(f"not a heft MQTT message: {type(message).__name__}")
+        raise TypeError(f"not a message a station publishes: {type(message).__name__}")
 
     def encode_last(self, measurement: Measurement) -> Outgoing:
         """The retained ``last_measurement`` copy of a measurement."""

@@ -25,7 +25,7 @@ from heft.daemon.events import (
 )
 from heft.daemon.measurement import Verdict
 from heft.daemon.mqtt_topics import TOPIC_SPECS, Topics, parse_topic
-from heft.daemon.wire import ActiveAlarms, Message, StationStatus, WireCodec, WireError
+from heft.daemon.wire import ActiveAlarms, Outbound, StationStatus, WireCodec, WireError
 from heft.drivers.reading import Flag
 from tests.sample_records import make_alarm, make_measurement
 
@@ -128,7 +128,7 @@ def test_every_event_type_has_a_strategy() -> None:
 
 @settings(max_examples=300, deadline=None)
 @given(messages)
-def test_every_message_survives_the_round_trip(message: Message) -> None:
+def test_every_message_survives_the_round_trip(message: Outbound) -> None:
     out = CODEC.encode(message, now_utc=NOW)
     assert CODEC.decode(out.topic, out.payload) == message
     match = parse_topic(ROOT, out.topic)

@@ -39,7 +39,7 @@ from heft.daemon.physics.swingweight import (
     moment_about_g_in,
     points_from_moment_g_in,
 )
-from heft.daemon.wire import PAYLOAD_MODELS, ActiveAlarms, Message, WireCodec
+from heft.daemon.wire import PAYLOAD_MODELS, ActiveAlarms, Outbound, WireCodec
 from heft.drivers.reading import Flag
 from heft.drivers.units import g_in_to_oz_in
 
@@ -136,7 +136,7 @@ def _example_alarm() -> Alarm:
     )
 
 
-def _encoded(message: Message) -> Any:
+def _encoded(message: Outbound) -> Any:
     """What the codec publishes for a message, as JSON-ready data."""
     return json.loads(WireCodec("heft").encode(message, now_utc=_T).payload)
 
