@@ -10,7 +10,6 @@ from __future__ import annotations
 
 from collections import deque
 from collections.abc import Callable
-from dataclasses import replace
 from datetime import datetime
 
 from heft.daemon.events import Alarm, AlarmKind
@@ -48,7 +47,10 @@ class AlarmManager:
         current = self._active.get(key)
         if current is not None and current.message == message:
             return None
-        alarm = Alarm(self.station, kind, source, True, message, self._clock())
+        alarm = Alarm(
+            station=self.station, kind=kind, source=source, active=True, message=message,
+            time_utc=self._clock(),
+        )
         self._active[key] = alarm
         return self._emit(alarm)
 
@@ -57,7 +59,12 @@ class AlarmManager:
         key = f"{kind.value}:{source}"
         if self._active.pop(key, None) is None:
             return None
-        return self._emit(Alarm(self.station, kind, source, False, message, self._clock()))
+        return self._emit(
+            Alarm(
+                station=self.station, kind=kind, source=source, active=False, message=message,
+                time_utc=self._clock(),
+            )
+        )
 
     def set(self, kind: AlarmKind, source: str, active: bool, message: str) -> Alarm | None:
         """Raise when ``active`` else clear: for conditions re-evaluated on every sample."""
@@ -72,7 +79,7 @@ class AlarmManager:
             raise UnknownAlarmError(key)
         if current.acknowledged:
             return current
-        acked = replace(current, acknowledged=True, time_utc=self._clock())
+        acked = current.model_copy(update={"acknowledged": True, "time_utc": self._clock()})
         self._active[key] = acked
         return self._emit(acked)
 

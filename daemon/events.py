@@ -3,6 +3,12 @@
 The dashboard, the MQTT publisher and tests are all subscribers; none of them owns hardware.
 A slow subscriber loses its oldest events rather than slowing capture (its queue is bounded);
 measurements are durable in the database anyway, so a subscriber can always catch up from there.
+
+Events are frozen pydantic models, built with keyword arguments only and validated on
+construction: a bad field raises ``ValidationError`` naming it where the event is made, not
+where a subscriber trips over it. Their JSON form is the MQTT wire format (``heft.daemon.wire``
+adds only the publish time), so a field added here reaches the wire and its schema at once.
+Field order is the wire's key order.
 """
 
 from __future__ import annotations
@@ -12,6 +18,17 @@ import enum
 from collections.abc import AsyncIterator
 from dataclasses import dataclass, field
 from datetime import datetime
+from typing import Annotated, Any
+
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    PlainSerializer,
+    computed_field,
+    model_validator,
+)
 
 from heft.daemon.measurement import Measurement
 from heft.drivers.reading import Flag
@@ -38,63 +55,132 @@ class AlarmKind(enum.StrEnum):
     STORAGE_FAILED = "storage_failed"
 
 
-@dataclass(frozen=True, slots=True)
-class LiveReading:
-    station: str
-    channel: str  # '<device>/<index>'
-    t_mono_s: float
+def flag_names(flags: Flag) -> list[str]:
+    """Flag set -> sorted lower-case names, e.g. ['net', 'stable'] (empty for NONE)."""
+    return sorted((f.name or "").lower() for f in Flag if f.value and f in flags)
+
+
+def _flags_in(value: Any) -> Any:
+    """A list of lower-case Flag names (the wire form) -> Flag; anything else passes through."""
+    if not isinstance(value, list | tuple):
+        return value
+    flags = Flag.NONE
+    for name in value:
+        member = Flag.__members__.get(str(name).upper()) if name else None
+        if member is None:
+            known = ", ".join(sorted(n.lower() for n in Flag.__members__ if n != "NONE"))
+            raise ValueError(f"unknown flag {name!r}; expected some of: {known}")
+        flags |= member
+    return flags
+
+
+# In memory a Flag set; on the wire a sorted list of lower-case names.
+Flags = Annotated[
+    Flag,
+    BeforeValidator(_flags_in),
+    PlainSerializer(flag_names, return_type=list[str], when_used="json"),
+    Field(description="lower-case Flag names"),
+]
+Name = Annotated[str, Field(min_length=1)]
+
+
+class _Event(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+
+class LiveReading(_Event):
+    """One live reading of one channel (throttled on MQTT, QoS 0: a missed one is superseded)."""
+
+    station: Name
+    channel: str = Field(pattern=r"^[^/]+/[^/]+$", description="'<device>/<channel index>'")
     value_g: float
-    flags: Flag
+    flags: Flags = Flag.NONE
+    t_mono_s: float = Field(description="the service's monotonic clock: for intervals only")
 
 
-@dataclass(frozen=True, slots=True)
-class CaptureStateChanged:
-    station: str
+class CaptureStateChanged(_Event):
+    """The capture engine's state (retained on MQTT: a new subscriber sees the current state)."""
+
+    station: Name
     state: CaptureState
-    t_mono_s: float
     detail: str = ""
+    t_mono_s: float = Field(description="the service's monotonic clock: for intervals only")
 
 
-@dataclass(frozen=True, slots=True)
-class MeasurementCaptured:
+class MeasurementCaptured(_Event):
     measurement: Measurement
 
 
-@dataclass(frozen=True, slots=True)
-class Alarm:
-    station: str
+class Alarm(_Event):
+    """One alarm, raised or cleared."""
+
+    station: Name
     kind: AlarmKind
-    source: str  # device name, channel or 'station'
+    source: Name = Field(description="device name, channel or 'station'")
     active: bool
+    acknowledged: bool = False
     message: str
     time_utc: datetime
-    acknowledged: bool = False
 
+    @model_validator(mode="before")
+    @classmethod
+    def _drop_key(cls, data: Any) -> Any:
+        """Accept the serialized ``key`` back (it is derived), if it matches kind and source."""
+        if isinstance(data, dict) and "key" in data:
+            data = dict(data)
+            key = data.pop("key")
+            kind, source = data.get("kind"), data.get("source")
+            kind_text = kind.value if isinstance(kind, AlarmKind) else kind
+            if key != f"{kind_text}:{source}":
+                raise ValueError(
+                    f"key {key!r} does not match kind {kind_text!r} and source {source!r}"
+                )
+        return data
+
+    @computed_field(description="'<kind>:<source>', the id used by the ack_alarm command")  # type: ignore[prop-decorator]
     @property
     def key(self) -> str:
         return f"{self.kind.value}:{self.source}"
 
 
-@dataclass(frozen=True, slots=True)
-class AlarmChanged:
+class AlarmChanged(_Event):
     alarm: Alarm
 
 
-@dataclass(frozen=True, slots=True)
-class DeviceStatus:
-    station: str
-    device: str
+class DeviceStatus(_Event):
+    """One device's connection and health (retained per device on MQTT)."""
+
+    station: Name
+    device: Name
     connected: bool
     port: str
     sample_rate_hz: float | None = None
-    frame_errors: int = 0
+    frame_errors: int = Field(default=0, ge=0)
     last_value: float | None = None
-    last_t_mono_s: float | None = None
     model: str = ""
     firmware: str = ""
+    last_t_mono_s: float | None = Field(
+        default=None, description="the service's monotonic clock at the last value"
+    )
 
 
 Event = LiveReading | CaptureStateChanged | MeasurementCaptured | AlarmChanged | DeviceStatus
+EVENT_TYPES: tuple[type[_Event], ...] = (
+    LiveReading,
+    CaptureStateChanged,
+    MeasurementCaptured,
+    AlarmChanged,
+    DeviceStatus,
+)
+
+
+def station_of(event: Event) -> str:
+    """The station an event came from."""
+    if isinstance(event, MeasurementCaptured):
+        return event.measurement.station
+    if isinstance(event, AlarmChanged):
+        return event.alarm.station
+    return event.station
 
 
 @dataclass

@@ -10,6 +10,10 @@ Everything else the link publishes is state it keeps in memory from bus events (
 device status, active alarms, the newest live value per channel); after a reconnect it publishes
 that state again, so the broker's retained copies are always current.
 
+Jobs are split by module: ``mqtt_client`` opens connections (shared with the dashboard),
+``mqtt_state`` folds bus events into retained state and live readings, ``mqtt_commands`` answers
+commands, and every payload comes from the wire codec (``wire``). This module runs the session.
+
 Reconnects follow aiomqtt's supported pattern: a loop around ``async with aiomqtt.Client(...)``
 that catches ``MqttError``. Failed connection attempts back off exponentially with jitter
 (tenacity); a session that was up and then dropped restarts the backoff from its shortest delay.
@@ -21,94 +25,32 @@ import asyncio
 import contextlib
 import json
 import logging
-import math
-import socket
 import time
-from collections import deque
-from collections.abc import Awaitable, Callable, Coroutine, Iterable
-from datetime import UTC, datetime
-from typing import Any, Generic, TypeVar
+from collections.abc import Callable
 
 import aiomqtt
-from paho.mqtt.packettypes import PacketTypes
-from paho.mqtt.properties import Properties
-from pydantic import BaseModel
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential_jitter
 
-from heft.daemon.command_api import Command, Reply, parse_command
-from heft.daemon.events import (
-    Alarm,
-    AlarmChanged,
-    CaptureStateChanged,
-    DeviceStatus,
-    Event,
-    EventBus,
-    LiveReading,
-    MeasurementCaptured,
-    Subscription,
+from heft.daemon.command_api import Reply
+from heft.daemon.events import Event, EventBus, MeasurementCaptured, Subscription
+from heft.daemon.mqtt_client import (
+    cancel_until_done,
+    first_error,
+    make_client,
+    raise_if_cancel_requested,
 )
+from heft.daemon.mqtt_commands import CommandHandler, CommandResponder, raw_payload
 from heft.daemon.mqtt_settings import MqttSettings
-from heft.daemon.mqtt_topics import (
-    OFFLINE,
-    ONLINE,
-    AlarmPayload,
-    AlarmsPayload,
-    CaptureStatePayload,
-    DeviceStatusPayload,
-    LiveReadingPayload,
-    TopicError,
-    Topics,
-    ha_discovery,
-)
+from heft.daemon.mqtt_state import StatePublisher, send
+from heft.daemon.mqtt_topics import Topics, ha_discovery
 from heft.daemon.storage import StorageError, Store
 from heft.daemon.version import __version__
+from heft.daemon.wire import ActiveAlarms, StationStatus, WireCodec
 
 log = logging.getLogger(__name__)
 
-CommandHandler = Callable[[Command], Awaitable[Reply]]
-MAX_COMMAND_BYTES = 16_384  # a command is a small JSON object; anything bigger is refused
 OUTBOX_BATCH = 100
-OPERATION_TIMEOUT_S = 10.0  # no healthy broker takes this long to acknowledge
 STABLE_SESSION_S = 10.0  # a session shorter than this counts as a failed attempt (backoff)
-K = TypeVar("K")
-V = TypeVar("V")
-
-
-class LatestValueThrottle(Generic[K, V]):
-    """At most one value per key per ``min_interval_s``; the newest value wins, none is stuck.
-
-    The first value of a quiet key is due at once; values arriving inside the interval replace
-    each other and the last one is due when the interval ends, so a channel's final reading is
-    always published. Pure: the caller passes the clock.
-    """
-
-    def __init__(self, min_interval_s: float) -> None:
-        self.min_interval_s = min_interval_s
-        self._pending: dict[K, V] = {}
-        self._last_sent: dict[K, float] = {}
-
-    def offer(self, key: K, value: V) -> None:
-        self._pending[key] = value
-
-    def take_due(self, now: float) -> list[tuple[K, V]]:
-        due = [
-            (k, v)
-            for k, v in self._pending.items()
-            if now - self._last_sent.get(k, -math.inf) >= self.min_interval_s
-        ]
-        for k, _ in due:
-            del self._pending[k]
-            self._last_sent[k] = now
-        return due
-
-    def next_due(self) -> float | None:
-        """Clock time at which the next pending value becomes due (None: nothing pending)."""
-        if not self._pending:
-            return None
-        return min(self._last_sent.get(k, -math.inf) + self.min_interval_s for k in self._pending)
-
-    def clear(self) -> None:
-        self._pending.clear()
 
 
 class MqttLink:
@@ -141,26 +83,15 @@ class MqttLink:
         self.settings = settings
         self.station = station
         self.topics = Topics(settings.topic_root, station)
+        self.codec = WireCodec(settings.topic_root)
         self.client_id = settings.client_id or f"heft-{station}"
         self._store = store
         self._bus = bus
-        self._handle_command = handle_command
         self._retry_initial_s = retry_initial_s
         self._retry_max_s = retry_max_s
         self._clock = clock
-        # State kept across connections and re-published after each (re)connect.
-        self._capture: CaptureStatePayload | None = None
-        self._devices: dict[str, DeviceStatusPayload] = {}
-        self._alarms: dict[str, Alarm] = {}
-        self._alarm_events: deque[AlarmPayload] = deque(maxlen=1000)
-        self._dirty_capture = False
-        self._dirty_devices: set[str] = set()
-        self._dirty_alarms = False
-        self._live: LatestValueThrottle[str, LiveReadingPayload] = LatestValueThrottle(
-            1.0 / settings.live_max_rate_hz
-        )
-        self._bad_channels: set[str] = set()
-        self._changed = asyncio.Event()
+        self._state = StatePublisher(self.codec, station, settings.live_max_rate_hz, clock)
+        self._commands = CommandResponder(settings, self.topics, handle_command)
         self._wake = asyncio.Event()
         self._connected = asyncio.Event()
         self.published_measurements = 0  # acknowledged by the broker, this process
@@ -178,6 +109,20 @@ class MqttLink:
         """A measurement was stored: drain the outbox now (the bus event does this too)."""
         self._wake.set()
 
+    def apply_event(self, event: Event) -> None:
+        """Fold one bus event into what to publish (synchronous, never blocks)."""
+        if isinstance(event, MeasurementCaptured):
+            self.wake()
+        else:
+            self._state.apply_event(event)
+
+    def active_alarms(self) -> ActiveAlarms:
+        return self._state.active_alarms()
+
+    async def reply_to(self, payload: bytes) -> Reply:
+        """The reply to one raw command payload (validated, refused or handled)."""
+        return await self._commands.reply_to(payload)
+
     async def run(self) -> None:
         """Keep the link up until cancelled; never returns otherwise."""
         if not self.settings.enabled:
@@ -187,8 +132,9 @@ class MqttLink:
         consumer = asyncio.create_task(self._consume_events(sub), name="mqtt-events")
         try:
             try:
-                for alarm in await asyncio.to_thread(self._store.active_alarms, self.station):
-                    self._alarms.setdefault(alarm.key, alarm)
+                self._state.restore_alarms(
+                    await asyncio.to_thread(self._store.active_alarms, self.station)
+                )
             except StorageError as err:  # the bus still brings every change from now on
                 log.error("cannot restore active alarms: %s", err)
             while True:
@@ -223,38 +169,12 @@ class MqttLink:
         )
 
     def make_client(self) -> aiomqtt.Client:
-        """A fresh client per connection attempt: no stale paho state survives a reconnect."""
-        s = self.settings
-        tls_params = None
-        tls_insecure = None
-        if s.tls is not None:
-            tls_params = aiomqtt.TLSParameters(
-                ca_certs=str(s.tls.ca_file) if s.tls.ca_file else None,
-                certfile=str(s.tls.cert_file) if s.tls.cert_file else None,
-                keyfile=str(s.tls.key_file) if s.tls.key_file else None,
-            )
-            tls_insecure = s.tls.insecure
-        return aiomqtt.Client(
-            s.host,
-            s.port,
-            username=s.username,
-            password=s.password.get_secret_value() if s.password else None,
-            identifier=self.client_id,
-            protocol=aiomqtt.ProtocolVersion.V5,
-            # Clean start on purpose: a command queued while the station was away (a tare from
-            # an hour ago) must not run when it returns. Durability comes from our outbox.
-            clean_start=True,
-            will=aiomqtt.Will(self.topics.status, OFFLINE, qos=1, retain=True),
-            keepalive=s.keepalive_s,
-            tls_params=tls_params,
-            tls_insecure=tls_insecure,
-            # Bounds every publish/subscribe; also ends a session wedged by a socket closed
-            # under the client mid-handshake (seen when two clients share one id).
-            timeout=OPERATION_TIMEOUT_S,
-            # Without TCP_NODELAY, Nagle's algorithm holds a small publish until the broker has
-            # ACKed the previous one (a delayed ACK waits up to 40 ms): measured 48 ms against
-            # 6 ms per measurement (tests/bench/pipeline_bench.py, docs/performance.md).
-            socket_options=((socket.IPPROTO_TCP, socket.TCP_NODELAY, 1),),
+        """A fresh client per connection attempt, with the station's last will 'offline'."""
+        will = self.codec.encode(StationStatus(station=self.station, online=False))
+        return make_client(
+            self.settings,
+            self.client_id,
+            will=aiomqtt.Will(will.topic, will.payload, qos=will.qos, retain=will.retain),
         )
 
     async def _connect_and_serve(self) -> None:
@@ -291,10 +211,11 @@ class MqttLink:
             raise aiomqtt.MqttError(f"link error: {err!r}") from err
         finally:
             self._connected.clear()
+            self._state.connected = False
 
     async def _serve(self, client: aiomqtt.Client) -> None:
         t = self.topics
-        await client.publish(t.status, ONLINE, qos=1, retain=True)
+        await send(client, self.codec.encode(StationStatus(station=self.station, online=True)))
         await client.subscribe(t.cmd, qos=1)
         if self.settings.homeassistant_discovery:
             await client.subscribe(f"{self.settings.homeassistant_prefix}/status", qos=1)
@@ -305,21 +226,23 @@ class MqttLink:
             log.error("cannot read the last measurement: %s", err)
             last = []
         if last:
-            await client.publish(t.measurement_last, _json(last[0]), qos=1, retain=True)
-        self._mark_all_dirty()
+            await send(client, self.codec.encode_last(last[0]))
+        self._state.mark_all_dirty()
         raise_if_cancel_requested()  # a cancel lost in a publish above must not start the session
         self._connected.set()
+        self._state.connected = True
         try:
-            await _first_error(
+            await first_error(
                 self._drain_outbox(client),
                 self._publish_state(client),
                 self._receive(client),
             )
         except asyncio.CancelledError:
             # Orderly shutdown: say so (the will only covers an abrupt loss).
+            offline = self.codec.encode(StationStatus(station=self.station, online=False))
             with contextlib.suppress(Exception):
                 async with asyncio.timeout(2):
-                    await client.publish(t.status, OFFLINE, qos=1, retain=True)
+                    await send(client, offline)
             raise
 
     # ------------------------------------------------------------------ measurements
@@ -337,16 +260,14 @@ class MqttLink:
                 await self._wake.wait()
                 continue
             for outbox_id, m in rows:
-                await client.publish(self.topics.measurement, _json(m), qos=1)
+                await send(client, self.codec.encode(MeasurementCaptured(measurement=m)))
                 # publish() returned: PUBACK arrived. Only now is the row done.
                 self.published_measurements += 1
                 try:
                     await asyncio.to_thread(self._store.mark_sent, outbox_id)
                 except StorageError as err:  # it will be sent again: a duplicate, same id
                     log.error("cannot mark outbox row %d sent: %s", outbox_id, err)
-            await client.publish(
-                self.topics.measurement_last, _json(rows[-1][1]), qos=1, retain=True
-            )
+            await send(client, self.codec.encode_last(rows[-1][1]))
 
     # ------------------------------------------------------------------ state from the bus
 
@@ -354,90 +275,8 @@ class MqttLink:
         async for event in sub:
             self.apply_event(event)
 
-    def apply_event(self, event: Event) -> None:
-        """Fold one bus event into the state to publish (synchronous, never blocks)."""
-        now = datetime.now(UTC)
-        if isinstance(event, MeasurementCaptured):
-            self.wake()
-            return
-        if isinstance(event, LiveReading):
-            if self._connected.is_set() and event.station == self.station:
-                self._live.offer(event.channel, LiveReadingPayload.from_event(event, now))
-        elif isinstance(event, CaptureStateChanged):
-            self._capture = CaptureStatePayload.from_event(event, now)
-            self._dirty_capture = True
-        elif isinstance(event, DeviceStatus):
-            self._devices[event.device] = DeviceStatusPayload.from_event(event, now)
-            self._dirty_devices.add(event.device)
-        elif isinstance(event, AlarmChanged):
-            alarm = event.alarm
-            if alarm.active:
-                self._alarms[alarm.key] = alarm
-            else:
-                self._alarms.pop(alarm.key, None)
-            self._alarm_events.append(AlarmPayload.from_alarm(alarm))
-            self._dirty_alarms = True
-        self._changed.set()
-
-    def alarms_payload(self) -> AlarmsPayload:
-        return AlarmsPayload(
-            station=self.station,
-            time_utc=datetime.now(UTC),
-            active=[AlarmPayload.from_alarm(a) for a in self._alarms.values()],
-        )
-
-    def _mark_all_dirty(self) -> None:
-        self._dirty_capture = self._capture is not None
-        self._dirty_devices = set(self._devices)
-        self._dirty_alarms = True  # always: replaces a stale retained list after a restart
-        self._live.clear()  # readings from before the connection are stale
-        self._changed.set()
-
     async def _publish_state(self, client: aiomqtt.Client) -> None:
-        t = self.topics
-        while True:
-            self._changed.clear()
-            if self._dirty_capture and self._capture is not None:
-                self._dirty_capture = False
-                await client.publish(t.capture, _json(self._capture), qos=1, retain=True)
-            while self._dirty_devices:
-                name = self._dirty_devices.pop()
-                await self._publish_checked(
-                    client, t.device, name, _json(self._devices[name]), 1, True
-                )
-            if self._dirty_alarms:
-                self._dirty_alarms = False
-                await client.publish(t.alarms, _json(self.alarms_payload()), qos=1, retain=True)
-            while self._alarm_events:
-                await client.publish(t.alarm_event, _json(self._alarm_events[0]), qos=1)
-                self._alarm_events.popleft()
-            for channel, payload in self._live.take_due(self._clock()):
-                await self._publish_checked(client, t.live, channel, _json(payload), 0, False)
-            due = self._live.next_due()
-            timeout = None if due is None else max(0.0, due - self._clock())
-            # asyncio.timeout, not wait_for: see raise_if_cancel_requested.
-            with contextlib.suppress(TimeoutError):
-                async with asyncio.timeout(timeout):
-                    await self._changed.wait()
-
-    async def _publish_checked(
-        self,
-        client: aiomqtt.Client,
-        build_topic: Callable[[str], str],
-        name: str,
-        payload: str,
-        qos: int,
-        retain: bool,
-    ) -> None:
-        """Publish to a topic built from a device-supplied name; log a bad name once, skip it."""
-        try:
-            topic = build_topic(name)
-        except TopicError as err:
-            if str(err) not in self._bad_channels:
-                self._bad_channels.add(str(err))
-                log.error("not published: %s", err)
-            return
-        await client.publish(topic, payload, qos=qos, retain=retain)
+        await self._state.publish(client)
 
     # ------------------------------------------------------------------ commands
 
@@ -445,151 +284,16 @@ class MqttLink:
         ha_status = f"{self.settings.homeassistant_prefix}/status"
         async for msg in client.messages:
             if msg.topic.matches(self.topics.cmd):
-                await self._answer(client, msg)
+                await self._commands.answer(client, msg)
             elif (
                 self.settings.homeassistant_discovery
                 and msg.topic.matches(ha_status)
-                and _text(msg.payload).strip() == "online"
+                and raw_payload(msg.payload).decode("utf-8", "replace").strip() == "online"
             ):
                 await self._publish_discovery(client)
-
-    async def _answer(self, client: aiomqtt.Client, msg: aiomqtt.Message) -> None:
-        reply = await self.reply_to(_raw(msg.payload))
-        props = msg.properties
-        response_topic = getattr(props, "ResponseTopic", None) if props else None
-        correlation = getattr(props, "CorrelationData", None) if props else None
-        out_props = None
-        if correlation is not None:
-            out_props = Properties(PacketTypes.PUBLISH)  # type: ignore[no-untyped-call]  # paho is untyped
-            out_props.CorrelationData = correlation
-        target = self.topics.cmd_reply
-        if isinstance(response_topic, str) and _valid_publish_topic(response_topic):
-            target = response_topic
-        await client.publish(target, _json(reply), qos=1, properties=out_props)
-
-    async def reply_to(self, payload: bytes) -> Reply:
-        """The reply to one raw command payload (validated, refused or handled)."""
-        command_name, request_id = _request_meta(payload)
-        echo = {"command": command_name, "request_id": request_id}
-        if len(payload) > MAX_COMMAND_BYTES:
-            return Reply(
-                ok=False,
-                **echo,
-                message=f"bad command: payload: {len(payload)} bytes, expected at most "
-                f"{MAX_COMMAND_BYTES}",
-            )
-        if not self.settings.commands_enabled:
-            return Reply(
-                ok=False,
-                **echo,
-                message=f"refused: commands are disabled on station {self.station} "
-                "(mqtt.commands_enabled = false)",
-            )
-        parsed = parse_command(payload)
-        if isinstance(parsed, Reply):
-            return parsed.model_copy(update=echo)
-        echo = {"command": parsed.command, "request_id": parsed.request_id}
-        if self._handle_command is None:
-            return Reply(
-                ok=False, **echo, message=f"refused: station {self.station} takes no commands"
-            )
-        try:
-            reply = await self._handle_command(parsed)
-        except Exception as err:  # a failing handler must not take the link down
-            log.exception("command %s failed", parsed.command)
-            return Reply(ok=False, **echo, message=f"{parsed.command} failed: {err}")
-        return reply.model_copy(
-            update={
-                "command": reply.command or parsed.command,
-                "request_id": parsed.request_id,
-            }
-        )
 
     # ------------------------------------------------------------------ Home Assistant
 
     async def _publish_discovery(self, client: aiomqtt.Client) -> None:
         topic, payload = ha_discovery(self.topics, self.settings.homeassistant_prefix, __version__)
         await client.publish(topic, json.dumps(payload), qos=1, retain=True)
-
-
-# ---------------------------------------------------------------------- helpers
-
-
-def _json(model: BaseModel) -> str:
-    return model.model_dump_json()
-
-
-def _raw(payload: Any) -> bytes:
-    if isinstance(payload, bytes | bytearray):
-        return bytes(payload)
-    if payload is None:
-        return b""
-    return str(payload).encode()
-
-
-def _text(payload: Any) -> str:
-    return _raw(payload).decode("utf-8", errors="replace")
-
-
-def _request_meta(payload: bytes) -> tuple[str | None, str | None]:
-    """Best-effort command name and request id from a payload, even an invalid one."""
-    try:
-        obj = json.loads(payload)
-    except (ValueError, UnicodeDecodeError):
-        return None, None
-    if not isinstance(obj, dict):
-        return None, None
-    command, request_id = obj.get("command"), obj.get("request_id")
-    return (
-        command if isinstance(command, str) else None,
-        request_id if isinstance(request_id, str) else None,
-    )
-
-
-def _valid_publish_topic(topic: str) -> bool:
-    return bool(topic) and not any(c in topic for c in "+#\x00") and len(topic.encode()) < 65536
-
-
-def raise_if_cancel_requested() -> None:
-    """Raise CancelledError if the current task was cancelled and the cancel got lost.
-
-    On Python 3.11 ``asyncio.wait_for`` returns its awaitable's result instead of raising when
-    the task is cancelled in the same loop iteration that the awaitable completes (CPython
-    gh-86296, fixed in 3.12). aiomqtt bounds every publish and subscribe with ``wait_for``, so a
-    cancel arriving just as a PUBACK does is swallowed; a loop that then waits without a
-    deadline never ends. The request is still counted by ``Task.cancelling()``: check it.
-    """
-    task = asyncio.current_task()
-    if task is not None and task.cancelling():
-        raise asyncio.CancelledError
-
-
-async def cancel_until_done(tasks: Iterable[asyncio.Task[Any]], retry_s: float = 1.0) -> None:
-    """Cancel tasks and wait until all have finished, cancelling again any that ran on.
-
-    Only for tasks without a graceful shutdown of their own: a repeated cancel cuts one short.
-    A task may swallow one cancel (see :func:`raise_if_cancel_requested`); it cannot swallow
-    them all, so this always ends.
-    """
-    pending = set(tasks)
-    while pending:
-        for task in pending:
-            task.cancel()
-        _, pending = await asyncio.wait(pending, timeout=retry_s)
-
-
-async def _first_error(*coros: Coroutine[Any, Any, None]) -> None:
-    """Run coroutines together until the first one ends; cancel the rest; re-raise its error."""
-    tasks = [asyncio.create_task(c) for c in coros]
-    try:
-        done, _ = await asyncio.wait(tasks, return_when=asyncio.FIRST_COMPLETED)
-    finally:
-        # Not gather(): one cancel can be lost in aiomqtt (raise_if_cancel_requested), and a
-        # lost cancel here left the link's shutdown waiting forever on a connected client.
-        await cancel_until_done(tasks)
-        for task in tasks:  # retrieve every outcome: none is logged as "never retrieved"
-            if not task.cancelled():
-                task.exception()
-    for task in done:
-        if not task.cancelled() and (err := task.exception()) is not None:
-            raise err

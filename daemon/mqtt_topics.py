@@ -1,9 +1,10 @@
-"""MQTT topic names and payload models: the contract between the service and every MQTT client.
+"""MQTT topic names: the contract between the service and every MQTT client.
 
 Everything a station publishes lives under one subtree, ``<root>/<station>/``, so a clustered
 broker can place a station's traffic by prefix and a consumer can subscribe to one station or,
 with ``+`` in the station level, to all of them. ``docs/mqtt.md`` documents each topic; its JSON
-Schemas are generated from the models below (``heft schema``), never written by hand.
+Schemas are generated from the payload models of ``heft.daemon.wire`` (``heft schema``), never
+written by hand; the codec there turns messages into payloads and back.
 
 Topics (``S`` = ``<root>/<station>``):
 
@@ -13,11 +14,11 @@ topic                                 QoS   retain  payload
 S/status                              1     yes     ``online`` / ``offline`` (last will)
 S/measurement                         1     no      :class:`~daemon.measurement.Measurement`
 S/last_measurement                    1     yes     :class:`~daemon.measurement.Measurement`
-S/live/<device>/<index>               0     no      :class:`LiveReadingPayload`
-S/capture                             1     yes     :class:`CaptureStatePayload`
-S/device/<device>                     1     yes     :class:`DeviceStatusPayload`
-S/alarms                              1     yes     :class:`AlarmsPayload` (all active alarms)
-S/alarm/event                         1     no      :class:`AlarmPayload` (each change)
+S/live/<device>/<index>               0     no      :class:`~daemon.events.LiveReading`
+S/capture                             1     yes     :class:`~daemon.events.CaptureStateChanged`
+S/device/<device>                     1     yes     :class:`~daemon.events.DeviceStatus`
+S/alarms                              1     yes     :class:`~daemon.wire.ActiveAlarms`
+S/alarm/event                         1     no      :class:`~daemon.events.Alarm` (each change)
 S/cmd                                 1     no      a command (``daemon.command_api``)
 S/cmd/reply                           1     no      :class:`~daemon.command_api.Reply`
 ====================================  ====  ======  =========================================
@@ -26,20 +27,7 @@ S/cmd/reply                           1     no      :class:`~daemon.command_api.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import datetime
 from typing import Final, Literal
-
-from pydantic import BaseModel, ConfigDict, Field
-
-from heft.daemon.events import (
-    Alarm,
-    AlarmKind,
-    CaptureState,
-    CaptureStateChanged,
-    DeviceStatus,
-    LiveReading,
-)
-from heft.drivers.reading import Flag
 
 ONLINE: Final = "online"
 OFFLINE: Final = "offline"
@@ -268,129 +256,6 @@ def parse_topic(root: str, topic: str) -> TopicMatch | None:
     if head == DEVICE and rest and "/" not in rest:
         return TopicMatch(station, DEVICE, rest)
     return None
-
-
-# --------------------------------------------------------------------------------------------
-# Payload models. Measurements go out as ``daemon.measurement.Measurement`` unchanged.
-
-
-class _Payload(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="ignore")
-
-
-def flag_names(flags: Flag) -> list[str]:
-    """Flag set -> sorted lower-case names, e.g. ['net', 'stable'] (empty for NONE)."""
-    return sorted((f.name or "").lower() for f in Flag if f.value and f in flags)
-
-
-class LiveReadingPayload(_Payload):
-    """One live reading of one channel (throttled, QoS 0; a missed one is simply superseded)."""
-
-    station: str
-    channel: str = Field(description="'<device>/<channel index>'")
-    value_g: float
-    flags: list[str] = Field(default_factory=list, description="lower-case Flag names")
-    t_mono_s: float = Field(description="the service's monotonic clock: for intervals only")
-    time_utc: datetime
-
-    @classmethod
-    def from_event(cls, ev: LiveReading, now_utc: datetime) -> LiveReadingPayload:
-        return cls(
-            station=ev.station,
-            channel=ev.channel,
-            value_g=ev.value_g,
-            flags=flag_names(ev.flags),
-            t_mono_s=ev.t_mono_s,
-            time_utc=now_utc,
-        )
-
-
-class CaptureStatePayload(_Payload):
-    """The capture engine's state (retained: a new subscriber sees the current state)."""
-
-    station: str
-    state: CaptureState
-    detail: str = ""
-    time_utc: datetime
-
-    @classmethod
-    def from_event(cls, ev: CaptureStateChanged, now_utc: datetime) -> CaptureStatePayload:
-        return cls(station=ev.station, state=ev.state, detail=ev.detail, time_utc=now_utc)
-
-
-class DeviceStatusPayload(_Payload):
-    """One device's connection and health (retained per device)."""
-
-    station: str
-    device: str
-    connected: bool
-    port: str
-    sample_rate_hz: float | None = None
-    frame_errors: int = 0
-    last_value: float | None = None
-    model: str = ""
-    firmware: str = ""
-    time_utc: datetime
-
-    @classmethod
-    def from_event(cls, ev: DeviceStatus, now_utc: datetime) -> DeviceStatusPayload:
-        return cls(
-            station=ev.station,
-            device=ev.device,
-            connected=ev.connected,
-            port=ev.port,
-            sample_rate_hz=ev.sample_rate_hz,
-            frame_errors=ev.frame_errors,
-            last_value=ev.last_value,
-            model=ev.model,
-            firmware=ev.firmware,
-            time_utc=now_utc,
-        )
-
-
-class AlarmPayload(_Payload):
-    """One alarm, raised or cleared."""
-
-    station: str
-    key: str = Field(description="'<kind>:<source>', the id used by the ack_alarm command")
-    kind: AlarmKind
-    source: str = Field(description="device name, channel or 'station'")
-    active: bool
-    acknowledged: bool = False
-    message: str
-    time_utc: datetime
-
-    @classmethod
-    def from_alarm(cls, alarm: Alarm) -> AlarmPayload:
-        return cls(
-            station=alarm.station,
-            key=alarm.key,
-            kind=alarm.kind,
-            source=alarm.source,
-            active=alarm.active,
-            acknowledged=alarm.acknowledged,
-            message=alarm.message,
-            time_utc=alarm.time_utc,
-        )
-
-    def to_alarm(self) -> Alarm:
-        return Alarm(
-            station=self.station,
-            kind=self.kind,
-            source=self.source,
-            active=self.active,
-            message=self.message,
-            time_utc=self.time_utc,
-            acknowledged=self.acknowledged,
-        )
-
-
-class AlarmsPayload(_Payload):
-    """Every alarm active at the station now (retained; an empty list means all clear)."""
-
-    station: str
-    time_utc: datetime
-    active: list[AlarmPayload] = Field(default_factory=list)
 
 
 # --------------------------------------------------------------------------------------------

@@ -250,7 +250,8 @@ class BenchPipeline:
             value_g = r.value
         net_g = value_g - state.tare_g if math.isfinite(value_g) else value_g
         if math.isfinite(net_g):
-            self._out.append(LiveReading(self.station, channel, r.t_mono_s, net_g, flags))
+            self._out.append(LiveReading(station=self.station, channel=channel, t_mono_s=r.t_mono_s,
+                                          value_g=net_g, flags=flags))
         group = self._group_of[channel]
         self._handle(group, group.engine.on_sample(channel, r.t_mono_s, net_g, flags))
 
@@ -287,7 +288,8 @@ class BenchPipeline:
         for ev in events:
             if isinstance(ev, StateChanged):
                 detail = ev.detail if len(self._groups) == 1 else f"{group.name}: {ev.detail}"
-                self._out.append(CaptureStateChanged(self.station, ev.state, ev.t_s, detail))
+                self._out.append(CaptureStateChanged(station=self.station, state=ev.state,
+                                                     t_mono_s=ev.t_s, detail=detail))
             elif isinstance(ev, CaptureWarning):
                 kind = _WARNING_ALARMS.get(ev.kind)
                 if kind is not None:
@@ -350,7 +352,8 @@ class BenchPipeline:
             numbers = self._numbers(windows)
         except StaticsError as err:
             self._out.append(
-                CaptureStateChanged(self.station, CaptureState.HOLDING, t_s, f"not a club: {err}")
+                CaptureStateChanged(station=self.station, state=CaptureState.HOLDING, t_mono_s=t_s,
+                                    detail=f"not a club: {err}")
             )
             return
         spec = self.spec
@@ -394,7 +397,7 @@ class BenchPipeline:
         )
         self.club_id = None
         self.balance_point_in = None
-        self._out.append(MeasurementCaptured(m))
+        self._out.append(MeasurementCaptured(measurement=m))
         if verdict.verdict is Verdict.FAIL:
             failed = "; ".join(c.message for c in verdict.failed)
             self.alarms.raise_alarm(
@@ -562,7 +565,7 @@ class BenchPipeline:
         from heft.daemon.events import Alarm
 
         assert isinstance(alarm, Alarm)
-        self._out.append(AlarmChanged(alarm))
+        self._out.append(AlarmChanged(alarm=alarm))
 
     def _take(self) -> list[Event]:
         out, self._out = self._out, []

@@ -173,8 +173,9 @@ class Service:
         for stale in store.active_alarms(self.config.station):
             with contextlib.suppress(StorageError):
                 store.record_alarm(
-                    Alarm(stale.station, stale.kind, stale.source, False,
-                          "service restarted; re-evaluated", self._clock_utc())
+                    stale.model_copy(update={"active": False, "acknowledged": False,
+                                            "message": "service restarted; re-evaluated",
+                                            "time_utc": self._clock_utc()})
                 )
         self._check_calibrations()
         async with asyncio.TaskGroup() as tasks:
@@ -242,7 +243,7 @@ class Service:
                 m.swingweight_points, m.verdict.value,
             )
             self._alarm_set(AlarmKind.STORAGE_FAILED, "storage", False, "storage recovered")
-            self.bus.publish(MeasurementCaptured(m))
+            self.bus.publish(MeasurementCaptured(measurement=m))
 
     def _storage_failed(self, outcome: Any) -> None:
         err = outcome.exception() if outcome is not None else None

@@ -13,7 +13,8 @@ from typing import Any
 
 import aiomqtt
 
-from heft.daemon.mqtt_link import MqttLink, cancel_until_done
+from heft.daemon.mqtt_client import cancel_until_done
+from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.mqtt_settings import MqttSettings
 from tests.mqtt_broker import Broker
 

@@ -34,7 +34,7 @@ async def main() -> None:
     for seq in range(1, 201):
         m = make_measurement(seq)
         await asyncio.to_thread(store.add_measurement, m)
-        bus.publish(MeasurementCaptured(m))
+        bus.publish(MeasurementCaptured(measurement=m))
         await asyncio.sleep(0.005)
     await task
 

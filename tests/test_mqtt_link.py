@@ -25,8 +25,8 @@ from heft.daemon.events import (
 )
 from heft.daemon.measurement import Measurement
 from heft.daemon.mqtt_link import MqttLink
-from heft.daemon.mqtt_topics import AlarmPayload, AlarmsPayload, LiveReadingPayload
 from heft.daemon.storage import Store
+from heft.daemon.wire import AlarmPayload, AlarmsPayload, LiveReadingPayload
 from heft.drivers.reading import Flag
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import (
@@ -60,7 +60,7 @@ async def test_stored_measurement_is_published_at_qos1_and_marked_sent(
     async with collecting(broker, t.measurement, t.measurement_last) as (_, got), running(link):
         m = make_measurement(1)
         store.add_measurement(m)
-        bus.publish(MeasurementCaptured(m))  # what the service does after storing
+        bus.publish(MeasurementCaptured(measurement=m))  # what the service does after storing
         await wait_until(lambda: len(got.on(t.measurement)) == 1, what="the measurement")
         await wait_until(lambda: store.outbox_count() == 0, what="outbox row marked sent")
         msg = got.on(t.measurement)[0]
@@ -112,11 +112,16 @@ async def test_alarms_capture_and_device_state_are_retained(broker: Broker, stor
 
     async with running(link):
         async with collecting(broker, *filters) as (_, live):
-            bus.publish(AlarmChanged(make_alarm(AlarmKind.DEVICE_OFFLINE, "beam", True)))
-            bus.publish(AlarmChanged(make_alarm(AlarmKind.OVERLOAD, "beam/0", True)))
-            bus.publish(AlarmChanged(make_alarm(AlarmKind.OVERLOAD, "beam/0", False)))
-            bus.publish(CaptureStateChanged("bench-1", CaptureState.SETTLING, 12.5, "placed"))
-            bus.publish(DeviceStatus("bench-1", "beam", True, "/dev/ttyUSB0", sample_rate_hz=80.0))
+            bus.publish(AlarmChanged(alarm=make_alarm(AlarmKind.DEVICE_OFFLINE, "beam", True)))
+            bus.publish(AlarmChanged(alarm=make_alarm(AlarmKind.OVERLOAD, "beam/0", True)))
+            bus.publish(AlarmChanged(alarm=make_alarm(AlarmKind.OVERLOAD, "beam/0", False)))
+            bus.publish(CaptureStateChanged(
+                station="bench-1", state=CaptureState.SETTLING, t_mono_s=12.5, detail="placed"
+            ))
+            bus.publish(DeviceStatus(
+                station="bench-1", device="beam", connected=True, port="/dev/ttyUSB0",
+                sample_rate_hz=80.0,
+            ))
             await wait_until(lambda: alarm_keys(live) == ["device_offline:beam"], what="alarms")
             await wait_until(lambda: bool(live.on(t.capture)), what="capture state")
             await wait_until(lambda: bool(live.on(t.device("beam"))), what="device status")
@@ -136,8 +141,8 @@ async def test_alarm_events_stream_every_change(broker: Broker, store: Store) ->
     bus = EventBus()
     link = MqttLink(settings_for(broker), "bench-1", store, bus)
     async with collecting(broker, link.topics.alarm_event) as (_, got), running(link):
-        bus.publish(AlarmChanged(make_alarm(AlarmKind.OVERLOAD, "beam/0", True)))
-        bus.publish(AlarmChanged(make_alarm(AlarmKind.OVERLOAD, "beam/0", False)))
+        bus.publish(AlarmChanged(alarm=make_alarm(AlarmKind.OVERLOAD, "beam/0", True)))
+        bus.publish(AlarmChanged(alarm=make_alarm(AlarmKind.OVERLOAD, "beam/0", False)))
         await wait_until(lambda: len(got.messages) == 2, what="two alarm events")
     events = [AlarmPayload.model_validate_json(p) for p in got.payloads(link.topics.alarm_event)]
     assert [(e.key, e.active) for e in events] == [
@@ -165,7 +170,10 @@ async def test_live_readings_throttled_per_channel_qos0_not_retained(
         # 200 readings per channel as fast as the loop allows: far above 2 Hz.
         for i in range(200):
             for ch in ("beam/0", "beam/1"):
-                bus.publish(LiveReading("bench-1", ch, i * 0.001, 100.0 + i, Flag.STABLE))
+                bus.publish(LiveReading(
+                    station="bench-1", channel=ch, t_mono_s=i * 0.001,
+                    value_g=100.0 + i, flags=Flag.STABLE,
+                ))
             if i % 20 == 0:
                 await asyncio.sleep(0)
         # The newest value of each channel always gets out (trailing edge of the throttle).
@@ -184,7 +192,7 @@ async def test_live_readings_throttled_per_channel_qos0_not_retained(
         assert all(m.qos == 0 and not m.retain for m in msgs)
         first = LiveReadingPayload.model_validate_json(msgs[0].payload)  # type: ignore[arg-type]
         assert first.channel == ch
-        assert first.flags == ["stable"]
+        assert first.flags == Flag.STABLE
 
 
 class RecordingHandler:
@@ -386,7 +394,7 @@ async def test_an_unexpected_error_in_a_session_is_logged_and_the_link_recovers(
             await wait_until(lambda: calls >= 2 and link.connected, what="second session")
             m = make_measurement(1)
             store.add_measurement(m)
-            bus.publish(MeasurementCaptured(m))
+            bus.publish(MeasurementCaptured(measurement=m))
             await wait_until(lambda: bool(got.messages), what="measurement after the fault")
         finally:
             await stop_task(task, "MqttLink.run", reraise=False)

@@ -14,7 +14,8 @@ from paho.mqtt.properties import Properties
 
 from heft.daemon.events import EventBus, MeasurementCaptured
 from heft.daemon.measurement import Measurement
-from heft.daemon.mqtt_link import MqttLink, cancel_until_done
+from heft.daemon.mqtt_client import cancel_until_done
+from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.storage import Store
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import settings_for, stop_task, wait_until
@@ -86,7 +87,7 @@ async def test_broker_stopped_mid_run_loses_nothing(broker: Broker, tmp_path: Pa
         def capture(seq: int) -> None:
             m = make_measurement(seq)
             store.add_measurement(m)  # durable first ...
-            bus.publish(MeasurementCaptured(m))  # ... then announced
+            bus.publish(MeasurementCaptured(measurement=m))  # ... then announced
             added.append(m)
 
         try:

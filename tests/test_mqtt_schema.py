@@ -11,8 +11,9 @@ import pytest
 from jsonschema import Draft202012Validator
 
 from heft.daemon.command_api import Reply, Tare
-from heft.daemon.events import AlarmKind
-from heft.daemon.mqtt_topics import TOPIC_SPECS, AlarmPayload, Topics
+from heft.daemon.events import AlarmChanged, AlarmKind
+from heft.daemon.mqtt_topics import TOPIC_SPECS, Topics
+from heft.daemon.wire import WireCodec
 from heft.tui.commands import schema as schema_cmd
 from tests.sample_records import make_alarm, make_measurement
 
@@ -40,8 +41,10 @@ def test_schema_is_valid_and_example_conforms(name: str) -> None:
         ("measurement", make_measurement(7).model_dump(mode="json")),
         (
             "alarm",
-            AlarmPayload.from_alarm(make_alarm(AlarmKind.OVERLOAD, "beam/0", True)).model_dump(
-                mode="json"
+            json.loads(
+                WireCodec("heft")
+                .encode(AlarmChanged(alarm=make_alarm(AlarmKind.OVERLOAD, "beam/0", True)))
+                .payload
             ),
         ),
         ("command", Tare(command="tare", request_id="r1").model_dump(mode="json")),

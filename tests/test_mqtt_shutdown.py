@@ -15,12 +15,8 @@ import time
 from pathlib import Path
 
 from heft.daemon.events import EventBus, LiveReading, MeasurementCaptured
-from heft.daemon.mqtt_link import (
-    MqttLink,
-    _first_error,
-    cancel_until_done,
-    raise_if_cancel_requested,
-)
+from heft.daemon.mqtt_client import cancel_until_done, first_error, raise_if_cancel_requested
+from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.storage import Store
 from heft.drivers.reading import Flag
 from tests.mqtt_broker import Broker
@@ -45,7 +41,7 @@ async def test_a_session_task_that_lost_its_cancel_still_stops() -> None:
         acked.set()  # the PUBACK lands in the very iteration the session ends
 
     # Bounded: before the fix this waited forever on the publisher.
-    await asyncio.wait_for(_first_error(publisher(), session_ends()), timeout=10)
+    await asyncio.wait_for(first_error(publisher(), session_ends()), timeout=10)
     if LOSES_CANCELS:
         assert cancels_seen == [1]  # the scenario really lost one cancel
 
@@ -106,7 +102,7 @@ async def test_link_stops_when_cancelled_among_publishes(broker: Broker, tmp_pat
                 await asyncio.wait_for(link.wait_connected(), timeout=15)
                 m = make_measurement(round_no + 1)
                 store.add_measurement(m)
-                bus.publish(MeasurementCaptured(m))
+                bus.publish(MeasurementCaptured(measurement=m))
                 done_feeding = asyncio.Event()
 
                 async def feed_live(
@@ -115,7 +111,10 @@ async def test_link_stops_when_cancelled_among_publishes(broker: Broker, tmp_pat
                     value_g = 100.0
                     while not done.is_set():
                         bus.publish(
-                            LiveReading("bench-1", "beam/0", time.monotonic(), value_g, Flag.STABLE)
+                            LiveReading(
+                                station="bench-1", channel="beam/0", t_mono_s=time.monotonic(),
+                                value_g=value_g, flags=Flag.STABLE,
+                            )
                         )
                         value_g += 0.1
                         await asyncio.sleep(0.003)

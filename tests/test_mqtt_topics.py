@@ -1,36 +1,18 @@
-"""Topic builders, topic parsing, payload models and the live-reading throttle (pure code)."""
+"""Topic builders, topic parsing, discovery and the live-reading throttle (pure code)."""
 
 from __future__ import annotations
 
-from datetime import UTC, datetime
-
 import pytest
 
-from heft.daemon.events import (
-    AlarmKind,
-    CaptureState,
-    CaptureStateChanged,
-    DeviceStatus,
-    LiveReading,
-)
-from heft.daemon.mqtt_link import LatestValueThrottle
+from heft.daemon.mqtt_state import LatestValueThrottle
 from heft.daemon.mqtt_topics import (
-    AlarmPayload,
-    CaptureStatePayload,
-    DeviceStatusPayload,
-    LiveReadingPayload,
     TopicError,
     TopicMatch,
     Topics,
-    flag_names,
     ha_discovery,
     ha_object_id,
     parse_topic,
 )
-from heft.drivers.reading import Flag
-from tests.sample_records import make_alarm
-
-NOW = datetime(2026, 11, 30, 9, 30, tzinfo=UTC)
 
 
 def test_every_topic_lives_in_the_station_subtree() -> None:
@@ -96,32 +78,6 @@ def test_parse_topic_round_trips_the_builders() -> None:
     t = Topics("plant/a", "qc-1")
     assert parse_topic("plant/a", t.live("scale/0")) == TopicMatch("qc-1", "live", "scale/0")
     assert parse_topic("plant/a", t.alarms) == TopicMatch("qc-1", "alarms")
-
-
-def test_flag_names() -> None:
-    assert flag_names(Flag.NONE) == []
-    assert flag_names(Flag.STABLE | Flag.NET) == ["net", "stable"]
-
-
-def test_payloads_from_events() -> None:
-    live = LiveReadingPayload.from_event(
-        LiveReading("bench-1", "beam/0", 3.25, 211.5, Flag.MOTION), NOW
-    )
-    assert (live.channel, live.value_g, live.flags) == ("beam/0", 211.5, ["motion"])
-    cap = CaptureStatePayload.from_event(
-        CaptureStateChanged("bench-1", CaptureState.HOLDING, 4.0), NOW
-    )
-    assert cap.state is CaptureState.HOLDING
-    dev = DeviceStatusPayload.from_event(
-        DeviceStatus("bench-1", "scale", False, "/dev/ttyACM0", frame_errors=3), NOW
-    )
-    assert (dev.connected, dev.frame_errors) == (False, 3)
-    alarm = make_alarm(AlarmKind.WILL_NOT_SETTLE, "station", True, NOW)
-    payload = AlarmPayload.from_alarm(alarm)
-    assert payload.key == "will_not_settle:station"
-    assert payload.to_alarm() == alarm
-    # JSON round trip: what a dashboard receives parses back to the same value.
-    assert AlarmPayload.model_validate_json(payload.model_dump_json()) == payload
 
 
 def test_ha_discovery_is_device_based_and_names_heft_topics() -> None:

@@ -216,8 +216,11 @@ async def test_keeps_up_with_four_channels_at_80_per_second() -> None:
         sent = 0
         for tick in range(80 * seconds):  # pushed in 0.1 s bursts, as the service would
             t = 2000.0 + tick / 80
-            source.push(*(LiveReading(STATION, ch, t, 100.0 + tick, Flag.STABLE)
-                          for ch in channels))
+            source.push(*(
+                LiveReading(station=STATION, channel=ch, t_mono_s=t, value_g=100.0 + tick,
+                            flags=Flag.STABLE)
+                for ch in channels
+            ))
             sent += len(channels)
             if tick % 8 == 7:
                 await asyncio.sleep(0)
@@ -247,7 +250,10 @@ class _ServiceLoop:
     async def _run(self) -> None:
         while not self._stop.is_set():
             self.published += 1
-            self.bus.publish(LiveReading(STATION, "beam/0", self.published / 80, 1.0, Flag.NONE))
+            self.bus.publish(LiveReading(
+                station=STATION, channel="beam/0", t_mono_s=self.published / 80,
+                value_g=1.0, flags=Flag.NONE,
+            ))
             await asyncio.sleep(1 / 80)
 
     async def handle(self, cmd: Command) -> Reply:
@@ -304,7 +310,7 @@ async def test_in_process_source_on_the_same_loop_with_backfill(tmp_path: Path) 
         app = HeftDashboard(InProcessSource(bus, handle, store))
         async with app.run_test(size=SIZE) as pilot:
             await settle(pilot, app, lambda: len(app.state.measurements) == 1)
-            bus.publish(MeasurementCaptured(make_measurement(2, "5i", 416.2, 31.8)))
+            bus.publish(MeasurementCaptured(measurement=make_measurement(2, "5i", 416.2, 31.8)))
             await settle(pilot, app, lambda: len(app.state.measurements) == 2)
             assert [m.seq for m in app.state.measurements] == [1, 2]
             await pilot.press("r")

@@ -7,6 +7,7 @@ inside the app under the pilot.
 
 from __future__ import annotations
 
+import argparse
 import asyncio
 import contextlib
 from collections.abc import AsyncIterator
@@ -21,13 +22,17 @@ from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.mqtt_settings import MqttSettings
 from heft.daemon.storage import Store
 from heft.tui.app import HeftDashboard
-from heft.tui.mqtt_source import BrokerUrlError, MqttSource, flags_from_names, settings_from_url
+from heft.tui.cli import build_parser
+from heft.tui.commands import dash
+from heft.tui.mqtt_source import BrokerUrlError, MqttSource, settings_from_url
 from heft.tui.pickers import StationPicker
 from heft.tui.readout import VerdictBanner
 from heft.tui.scripted_bench import make_measurement, out_of_spec_event, session_events
 from heft.tui.tables import DevicesTable
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import settings_for, stop_task, wait_until
+from tests.mqtt_tls import PASSWORD, USER, needs_tls_tools, tls_settings
+from tests.mqtt_tls import tls_broker as tls_broker  # a fixture
 
 SIZE = (120, 40)
 
@@ -47,7 +52,7 @@ class Station:
 
     def measure(self, m: Measurement) -> None:
         self.store.add_measurement(m)  # committed first, as the service does
-        self.bus.publish(MeasurementCaptured(m))
+        self.bus.publish(MeasurementCaptured(measurement=m))
 
 
 @contextlib.asynccontextmanager
@@ -77,7 +82,6 @@ def test_broker_url_parsing() -> None:
     for bad in ("http://x", "mqtt://", "mqtt://h:99999", "127.0.0.1:1883"):
         with pytest.raises(BrokerUrlError, match="broker URL"):
             settings_from_url(bad)
-    assert flags_from_names(["stable", "net", "nonsense"]).name is not None
 
 
 async def test_dash_shows_a_measurement_published_on_the_broker(
@@ -178,3 +182,60 @@ async def test_dash_reconnects_after_the_broker_restarts(broker: Broker, tmp_pat
             station.measure(make_measurement(2, "5i", 416.2, 31.8))
             await wait_until(lambda: len(app.state.measurements) == 2, timeout_s=30,
                              what="measurement after the restart")
+
+
+def dash_args(*argv: str) -> argparse.Namespace:
+    return build_parser().parse_args(["dash", *argv])
+
+
+def test_dash_options_make_the_settings(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    ca, pw = tmp_path / "ca.crt", tmp_path / "pw"
+    ca.write_text("not read until connecting\n")
+    pw.write_text("from-the-file\n")
+    monkeypatch.setenv(dash.PASSWORD_ENV, "from-the-env")
+    url = "mqtt://ops@broker.example/larkspur"
+    s = dash.settings_from_args(dash_args("--broker", url, "--tls-ca", str(ca), "--tls-insecure"))
+    assert s.tls is not None and (s.tls.ca_file, s.tls.insecure) == (ca, True)
+    assert s.password is not None and s.password.get_secret_value() == "from-the-env"
+    assert (s.host, s.username, s.topic_root) == ("broker.example", "ops", "larkspur")
+    s = dash.settings_from_args(dash_args("--broker", url, "--password-file", str(pw)))
+    assert s.password is not None and s.password.get_secret_value() == "from-the-file"
+    assert s.tls is None  # no TLS option, mqtt:// scheme: plain TCP
+    monkeypatch.delenv(dash.PASSWORD_ENV)
+    assert dash.settings_from_args(dash_args("--broker", url)).password is None
+    with pytest.raises(SystemExit):  # argparse names the option and the missing file
+        dash_args("--broker", url, "--tls-ca", str(tmp_path / "missing.crt"))
+    with pytest.raises(SystemExit):
+        dash.build_source(dash_args("--broker", url, "--tls-key", str(pw)))
+
+
+@needs_tls_tools
+async def test_heft_dash_watches_a_station_behind_a_private_ca(
+    tls_broker: tuple[Broker, int, Path], tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    _, port, ca = tls_broker
+    settings = tls_settings(port, ca, PASSWORD)
+    pw = tmp_path / "password"
+    pw.write_text(PASSWORD + "\n")
+    monkeypatch.delenv(dash.PASSWORD_ENV, raising=False)
+    url = f"mqtts://{USER}@127.0.0.1:{port}/{settings.topic_root}"
+    # Without the private CA the broker's certificate is not trusted: no connection.
+    untrusted = dash.build_source(dash_args("--broker", url, "--password-file", str(pw)))
+    # With it, what `heft dash --tls-ca ... --password-file ...` builds connects and shows data.
+    source = dash.build_source(
+        dash_args("--broker", url, "--tls-ca", str(ca), "--password-file", str(pw))
+    )
+    async with running(Station(settings, "bench-1", tmp_path / "s.db")) as station:
+        await untrusted.start()
+        try:
+            await wait_until(lambda: untrusted.retry_at_s is not None, what="refused attempt")
+            assert not untrusted.connected.is_set()
+        finally:
+            await untrusted.stop()
+        app = HeftDashboard(source, station="bench-1")
+        async with app.run_test(size=SIZE):
+            await wait_until(source.connected.is_set, what="dashboard connected over TLS")
+            station.measure(make_measurement(1, "6i", 423.1, 32.2))
+            await wait_until(lambda: len(app.state.measurements) == 1, what="measurement shown")
+            assert app.state.measurements[0].club == "6i"
+            assert source.bad_payloads == 0

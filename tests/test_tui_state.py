@@ -31,8 +31,14 @@ def test_session_folds_into_state() -> None:
 
 def test_other_stations_are_listed_not_shown() -> None:
     state = DashboardState("qc-1")
-    state.apply(LiveReading("bench-1", "beam/0", 1.0, 12.0, Flag.NONE))
-    state.apply(LiveReading("qc-1", "scale/0", 1.0, 400.0, Flag.STABLE))
+    state.apply(LiveReading(
+        station="bench-1", channel="beam/0", t_mono_s=1.0,
+        value_g=12.0, flags=Flag.NONE,
+    ))
+    state.apply(LiveReading(
+        station="qc-1", channel="scale/0", t_mono_s=1.0,
+        value_g=400.0, flags=Flag.STABLE,
+    ))
     assert state.stations == ["bench-1", "qc-1"]
     assert list(state.channels) == ["scale/0"]
     state.switch_station("bench-1")
@@ -105,14 +111,24 @@ def test_set_points_keep_the_latest_of_each_club() -> None:
 
 
 def test_settling_shows_the_load_now_not_the_load_at_detection() -> None:
-    settling = CaptureStateChanged(STATION, CaptureState.SETTLING, 1.0, "load 33.0 g")
+    settling = CaptureStateChanged(
+        station=STATION, state=CaptureState.SETTLING, t_mono_s=1.0, detail="load 33.0 g"
+    )
     assert capture_text(settling, 392.04) == "SETTLING - hands off (load 392.0 g)"
     assert capture_text(settling, None) == "SETTLING - hands off"
-    holding = CaptureStateChanged(STATION, CaptureState.HOLDING, 2.0, "not a club: too light")
+    holding = CaptureStateChanged(
+        station=STATION, state=CaptureState.HOLDING, t_mono_s=2.0, detail="not a club: too light"
+    )
     assert capture_text(holding, 5.0).endswith("(not a club: too light)")
     state = DashboardState()
-    state.apply(LiveReading(STATION, "beam/0", 1.0, 120.5, Flag.NONE))
-    state.apply(LiveReading(STATION, "beam/1", 1.0, 271.5, Flag.NONE))
+    state.apply(LiveReading(
+        station=STATION, channel="beam/0", t_mono_s=1.0,
+        value_g=120.5, flags=Flag.NONE,
+    ))
+    state.apply(LiveReading(
+        station=STATION, channel="beam/1", t_mono_s=1.0,
+        value_g=271.5, flags=Flag.NONE,
+    ))
     assert state.load_g() == 392.0
     assert state.device_reading_g("beam") == 120.5
     assert state.device_reading_g("scan") is None

@@ -1,7 +1,8 @@
 """The dashboard attached to a running service through an MQTT broker (``heft dash``).
 
 Subscribes to the station topics of :mod:`daemon.mqtt_topics` (one station, or ``+`` for all),
-turns each payload back into the same event types the service puts on its bus, and sends
+decodes each payload with the service's own wire codec (:mod:`daemon.wire`) into the same
+event types the service puts on its bus, and sends
 commands on the station's command topic, matching replies by request id. Read-only unless
 ``commands_enabled``. A bad payload is counted and skipped, never fatal.
 """
@@ -23,40 +24,12 @@ from pydantic import SecretStr, ValidationError
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential
 
 from heft.daemon.command_api import Command, Reply
-from heft.daemon.events import (
-    Alarm,
-    AlarmChanged,
-    CaptureStateChanged,
-    DeviceStatus,
-    Event,
-    LiveReading,
-    MeasurementCaptured,
-)
-from heft.daemon.measurement import Measurement
-from heft.daemon.mqtt_link import raise_if_cancel_requested
+from heft.daemon.events import Alarm, AlarmChanged, Event, station_of
+from heft.daemon.mqtt_client import make_client, raise_if_cancel_requested
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
-from heft.daemon.mqtt_topics import (
-    ALARM_EVENT,
-    ALARMS,
-    CAPTURE,
-    CMD_REPLY,
-    DEVICE,
-    LIVE,
-    MEASUREMENT,
-    MEASUREMENT_LAST,
-    STATUS,
-    AlarmPayload,
-    AlarmsPayload,
-    CaptureStatePayload,
-    DeviceStatusPayload,
-    LiveReadingPayload,
-    Topics,
-    check_level,
-    parse_topic,
-)
-from heft.drivers.reading import Flag
+from heft.daemon.mqtt_topics import Topics, check_level
+from heft.daemon.wire import ActiveAlarms, StationStatus, WireCodec, WireError
 from heft.tui.source import EventSource
-from heft.tui.state import station_of
 
 log = logging.getLogger(__name__)
 
@@ -99,81 +72,35 @@ def settings_from_url(url: str) -> MqttSettings:
         raise BrokerUrlError(f"broker URL {url!r}: {where}: {first['msg']}") from None
 
 
-def flags_from_names(names: list[str]) -> Flag:
-    """['stable', 'net'] -> Flag.STABLE | Flag.NET; unknown names are ignored."""
-    flags = Flag.NONE
-    for name in names:
-        member = Flag.__members__.get(name.upper())
-        if member is not None:
-            flags |= member
-    return flags
+class AlarmSnapshots:
+    """Per-station active alarms, so the retained alarm list can be turned into changes."""
 
-
-class PayloadConverter:
-    """Turns (topic, payload) into events; keeps the per-station active-alarm snapshot."""
-
-    def __init__(self, root: str) -> None:
-        self.root = root
+    def __init__(self) -> None:
         self._active: dict[str, dict[str, Alarm]] = {}
-        self.online: dict[str, bool] = {}
 
-    def convert(self, topic: str, payload: bytes) -> tuple[list[Event], Reply | None]:
-        """Events for one message, plus a command reply when it was one.
-
-        Raises ValidationError / ValueError on a malformed payload (the caller counts it).
-        """
-        match = parse_topic(self.root, topic)
-        if match is None:
-            return [], None
-        kind, station = match.kind, match.station
-        if kind == STATUS:
-            self.online[station] = payload.decode("utf-8", "replace").strip() == "online"
-            return [], None
-        if kind in (MEASUREMENT, MEASUREMENT_LAST):
-            return [MeasurementCaptured(Measurement.model_validate_json(payload))], None
-        if kind == LIVE:
-            live = LiveReadingPayload.model_validate_json(payload)
-            return [LiveReading(live.station, live.channel, live.t_mono_s, live.value_g,
-                                flags_from_names(live.flags))], None
-        if kind == CAPTURE:
-            cap = CaptureStatePayload.model_validate_json(payload)
-            return [CaptureStateChanged(cap.station, cap.state, time.monotonic(), cap.detail)], None
-        if kind == DEVICE:
-            d = DeviceStatusPayload.model_validate_json(payload)
-            return [DeviceStatus(d.station, d.device, d.connected, d.port, d.sample_rate_hz,
-                                 d.frame_errors, d.last_value, None, d.model, d.firmware)], None
-        if kind == ALARM_EVENT:
-            alarm = AlarmPayload.model_validate_json(payload).to_alarm()
-            self._note(alarm)
-            return [AlarmChanged(alarm)], None
-        if kind == ALARMS:
-            return self._snapshot(AlarmsPayload.model_validate_json(payload)), None
-        if kind == CMD_REPLY:
-            return [], Reply.model_validate_json(payload)
-        return [], None
-
-    def _note(self, alarm: Alarm) -> None:
+    def note(self, alarm: Alarm) -> None:
         active = self._active.setdefault(alarm.station, {})
         if alarm.active:
             active[alarm.key] = alarm
         else:
             active.pop(alarm.key, None)
 
-    def _snapshot(self, snap: AlarmsPayload) -> list[Event]:
+    def changes(self, snap: ActiveAlarms) -> list[Event]:
         """The retained list of active alarms: raise what is new, clear what is gone."""
         now = self._active.get(snap.station, {})
-        listed = {a.key: a.to_alarm() for a in snap.active}
+        listed = {a.key: a for a in snap.active}
         events: list[Event] = []
         for key, old in list(now.items()):
             if key not in listed:
-                cleared = Alarm(old.station, old.kind, old.source, False,
-                                "cleared", snap.time_utc, old.acknowledged)
-                self._note(cleared)
-                events.append(AlarmChanged(cleared))
+                cleared = old.model_copy(
+                    update={"active": False, "message": "cleared", "time_utc": snap.time_utc}
+                )
+                self.note(cleared)
+                events.append(AlarmChanged(alarm=cleared))
         for alarm in listed.values():
             if now.get(alarm.key) != alarm:
-                self._note(alarm)
-                events.append(AlarmChanged(alarm))
+                self.note(alarm)
+                events.append(AlarmChanged(alarm=alarm))
         return events
 
 
@@ -181,21 +108,22 @@ class MqttSource(EventSource):
     """Events from a broker; commands to the selected station's command topic.
 
     Args:
-        url: ``mqtt://host:port`` (see :func:`settings_from_url`).
+        broker: connection settings, or a URL ``mqtt://host:port`` (see
+            :func:`settings_from_url`).
         station: only this station; None subscribes to every station under the root.
         commands_enabled: False (the default) makes the dashboard read-only.
     """
 
     def __init__(
         self,
-        url: str,
+        broker: str | MqttSettings,
         station: str | None = None,
         commands_enabled: bool = False,
         *,
         reply_timeout_s: float = REPLY_TIMEOUT_S,
     ) -> None:
         super().__init__()
-        self.settings = settings_from_url(url)
+        self.settings = settings_from_url(broker) if isinstance(broker, str) else broker
         if station is not None:
             check_level(station, "station")
         self.station = station
@@ -206,7 +134,9 @@ class MqttSource(EventSource):
         self.bad_payloads = 0
         self.last_error = ""
         self._target: str | None = station
-        self._converter = PayloadConverter(self.settings.topic_root)
+        self._codec = WireCodec(self.settings.topic_root)
+        self._alarms = AlarmSnapshots()
+        self.online: dict[str, bool] = {}
         self._client: aiomqtt.Client | None = None
         self._task: asyncio.Task[None] | None = None
         self._pending: dict[str, asyncio.Future[Reply]] = {}
@@ -226,17 +156,7 @@ class MqttSource(EventSource):
         self._target = station
 
     def _make_client(self) -> aiomqtt.Client:
-        s = self.settings
-        return aiomqtt.Client(
-            s.host,
-            s.port,
-            username=s.username,
-            password=s.password.get_secret_value() if s.password else None,
-            identifier=f"heft-dash-{uuid.uuid4().hex[:8]}",
-            protocol=aiomqtt.ProtocolVersion.V5,
-            tls_params=aiomqtt.TLSParameters() if s.tls is not None else None,
-            keepalive=s.keepalive_s,
-        )
+        return make_client(self.settings, f"heft-dash-{uuid.uuid4().hex[:8]}")
 
     def _retrying(self, state: RetryCallState) -> None:
         err = state.outcome.exception() if state.outcome else None
@@ -292,12 +212,24 @@ class MqttSource(EventSource):
     def _on_message(self, topic: str, payload: object) -> None:
         data = payload if isinstance(payload, bytes) else str(payload).encode()
         try:
-            events, reply = self._converter.convert(topic, data)
-        except (ValidationError, ValueError) as err:
+            message = self._codec.decode(topic, data)
+        except WireError as err:
             self.bad_payloads += 1
-            self.last_error = f"{topic}: {err}".splitlines()[0]
-            log.warning("ignored a bad payload on %s: %s", topic, err)
+            self.last_error = str(err).splitlines()[0]
+            log.warning("ignored a bad payload: %s", err)
             return
+        events: list[Event] = []
+        reply: Reply | None = None
+        if isinstance(message, StationStatus):
+            self.online[message.station] = message.online
+        elif isinstance(message, Reply):
+            reply = message
+        elif isinstance(message, ActiveAlarms):
+            events = self._alarms.changes(message)
+        elif message is not None:
+            if isinstance(message, AlarmChanged):
+                self._alarms.note(message.alarm)
+            events = [message]
         if events:
             if self._target is None:
                 self._target = station_of(events[0])

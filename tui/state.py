@@ -20,6 +20,7 @@ from heft.daemon.events import (
     Event,
     LiveReading,
     MeasurementCaptured,
+    station_of,
 )
 from heft.daemon.measurement import CheckResult, Measurement
 from heft.drivers.reading import Flag
@@ -193,15 +194,6 @@ class DashboardState:
 
     def job_measurements(self, job: str | None) -> list[Measurement]:
         return [m for m in self.measurements if m.job == job]
-
-
-def station_of(event: Event) -> str:
-    """The station an event came from."""
-    if isinstance(event, MeasurementCaptured):
-        return event.measurement.station
-    if isinstance(event, AlarmChanged):
-        return event.alarm.station
-    return event.station
 
 
 def find_check(m: Measurement, check: str) -> CheckResult | None:

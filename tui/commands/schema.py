@@ -1,4 +1,7 @@
-"""``heft schema``: JSON Schemas of every MQTT payload, generated from the pydantic models.
+"""``heft schema``: JSON Schemas of every MQTT payload, generated from the wire codec's models.
+
+Examples are what the codec (``heft.daemon.wire``) encodes for invented events, so the doc shows
+the bytes a station really publishes.
 
 ``heft schema`` lists the payloads, ``heft schema NAME`` prints one schema, ``--markdown`` prints
 the generated part of ``docs/mqtt.md`` (topic table, examples, schemas), and ``--update-doc FILE``
@@ -20,22 +23,24 @@ from typing import Any, Final
 from pydantic import BaseModel, TypeAdapter
 
 from heft.daemon.command_api import Command, Reply, SelectJob
-from heft.daemon.events import AlarmKind, CaptureState
-from heft.daemon.measurement import ChannelWindow, CheckResult, Measurement, Verdict
-from heft.daemon.mqtt_topics import (
-    ONLINE,
-    TOPIC_SPECS,
-    AlarmPayload,
-    AlarmsPayload,
-    CaptureStatePayload,
-    DeviceStatusPayload,
-    LiveReadingPayload,
+from heft.daemon.events import (
+    Alarm,
+    AlarmChanged,
+    AlarmKind,
+    CaptureState,
+    CaptureStateChanged,
+    DeviceStatus,
+    LiveReading,
 )
+from heft.daemon.measurement import ChannelWindow, CheckResult, Measurement, Verdict
+from heft.daemon.mqtt_topics import ONLINE, TOPIC_SPECS
 from heft.daemon.physics.swingweight import (
     label_from_points,
     moment_about_g_in,
     points_from_moment_g_in,
 )
+from heft.daemon.wire import PAYLOAD_MODELS, ActiveAlarms, Outbound, WireCodec
+from heft.drivers.reading import Flag
 from heft.drivers.units import g_in_to_oz_in
 
 JSON_SCHEMA_DIALECT: Final = "https://json-schema.org/draft/2020-12/schema"
@@ -120,10 +125,9 @@ def _example_measurement() -> Measurement:
     )
 
 
-def _example_alarm() -> AlarmPayload:
-    return AlarmPayload(
+def _example_alarm() -> Alarm:
+    return Alarm(
         station="bench-1",
-        key="device_offline:scale",
         kind=AlarmKind.DEVICE_OFFLINE,
         source="scale",
         active=True,
@@ -132,65 +136,72 @@ def _example_alarm() -> AlarmPayload:
     )
 
 
+def _encoded(message: Outbound) -> Any:
+    """What the codec publishes for a message, as JSON-ready data."""
+    return json.loads(WireCodec("heft").encode(message, now_utc=_T).payload)
+
+
+def _wire(name: str, example: Callable[[], Any], title: str) -> Payload:
+    return Payload(TypeAdapter(PAYLOAD_MODELS[name]), "serialization", example, title)
+
+
 PAYLOADS: Final[dict[str, Payload]] = {
     "availability": Payload(
         TypeAdapter(str), "serialization", lambda: ONLINE, "Station availability"
     ),
-    "measurement": Payload(
-        TypeAdapter(Measurement), "serialization", _example_measurement, "Measurement"
-    ),
-    "live_reading": Payload(
-        TypeAdapter(LiveReadingPayload),
-        "serialization",
-        lambda: LiveReadingPayload(
-            station="bench-1",
-            channel="beam/1",
-            value_g=336.68,
-            flags=["stable"],
-            t_mono_s=5121.4,
-            time_utc=_T,
+    "measurement": _wire("measurement", _example_measurement, "Measurement"),
+    "live_reading": _wire(
+        "live_reading",
+        lambda: _encoded(
+            LiveReading(
+                station="bench-1",
+                channel="beam/1",
+                value_g=336.68,
+                flags=Flag.STABLE,
+                t_mono_s=5121.4,
+            )
         ),
         "Live reading",
     ),
-    "capture_state": Payload(
-        TypeAdapter(CaptureStatePayload),
-        "serialization",
-        lambda: CaptureStatePayload(station="bench-1", state=CaptureState.HOLDING, time_utc=_T),
+    "capture_state": _wire(
+        "capture_state",
+        lambda: _encoded(
+            CaptureStateChanged(station="bench-1", state=CaptureState.HOLDING, t_mono_s=5121.9)
+        ),
         "Capture state",
     ),
-    "device_status": Payload(
-        TypeAdapter(DeviceStatusPayload),
-        "serialization",
-        lambda: DeviceStatusPayload(
-            station="bench-1",
-            device="beam",
-            connected=True,
-            port="/dev/heft-beam",
-            sample_rate_hz=80.0,
-            frame_errors=2,
-            last_value=336.68,
-            model="larkspur-beam",
-            firmware="1.4.2",
-            time_utc=_T,
+    "device_status": _wire(
+        "device_status",
+        lambda: _encoded(
+            DeviceStatus(
+                station="bench-1",
+                device="beam",
+                connected=True,
+                port="/dev/heft-beam",
+                sample_rate_hz=80.0,
+                frame_errors=2,
+                last_value=336.68,
+                model="larkspur-beam",
+                firmware="1.4.2",
+                last_t_mono_s=5121.4,
+            )
         ),
         "Device status",
     ),
-    "alarms": Payload(
-        TypeAdapter(AlarmsPayload),
-        "serialization",
-        lambda: AlarmsPayload(station="bench-1", time_utc=_T, active=[_example_alarm()]),
+    "alarms": _wire(
+        "alarms",
+        lambda: _encoded(ActiveAlarms(station="bench-1", time_utc=_T, active=(_example_alarm(),))),
         "Active alarms",
     ),
-    "alarm": Payload(TypeAdapter(AlarmPayload), "serialization", _example_alarm, "Alarm change"),
+    "alarm": _wire("alarm", lambda: _encoded(AlarmChanged(alarm=_example_alarm())), "Alarm change"),
     "command": Payload(
         TypeAdapter(Command),
         "validation",
         lambda: SelectJob(command="select_job", job="LC-2417", request_id="tablet-3-0042"),
         "Command",
     ),
-    "reply": Payload(
-        TypeAdapter(Reply),
-        "serialization",
+    "reply": _wire(
+        "reply",
         lambda: Reply(
             ok=True,
             command="select_job",

@@ -1,0 +1,120 @@
+"""Commands that reach the station over MQTT: validate, refuse or hand on, and reply.
+
+A reply goes to the command's MQTT 5 response topic with its correlation data when it has
+them, else to ``<root>/<station>/cmd/reply`` with the request id echoed (MQTT 3.1.1 clients).
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+from collections.abc import Awaitable, Callable
+from typing import Any
+
+import aiomqtt
+from paho.mqtt.packettypes import PacketTypes
+from paho.mqtt.properties import Properties
+
+from heft.daemon.command_api import Command, Reply, parse_command
+from heft.daemon.mqtt_settings import MqttSettings
+from heft.daemon.mqtt_topics import Topics
+
+log = logging.getLogger(__name__)
+
+CommandHandler = Callable[[Command], Awaitable[Reply]]
+MAX_COMMAND_BYTES = 16_384  # a command is a small JSON object; anything bigger is refused
+
+
+class CommandResponder:
+    """Answers the commands of one station.
+
+    Args:
+        settings: ``commands_enabled`` refuses every command when false.
+        topics: the station's topics (the default reply topic).
+        handle_command: called with each valid command; None refuses commands.
+    """
+
+    def __init__(
+        self, settings: MqttSettings, topics: Topics, handle_command: CommandHandler | None
+    ) -> None:
+        self.settings = settings
+        self.topics = topics
+        self._handle_command = handle_command
+
+    async def answer(self, client: aiomqtt.Client, msg: aiomqtt.Message) -> None:
+        reply = await self.reply_to(raw_payload(msg.payload))
+        props = msg.properties
+        response_topic = getattr(props, "ResponseTopic", None) if props else None
+        correlation = getattr(props, "CorrelationData", None) if props else None
+        out_props = None
+        if correlation is not None:
+            out_props = Properties(PacketTypes.PUBLISH)  # type: ignore[no-untyped-call]  # paho is untyped
+            out_props.CorrelationData = correlation
+        target = self.topics.cmd_reply
+        if isinstance(response_topic, str) and _valid_publish_topic(response_topic):
+            target = response_topic
+        await client.publish(target, reply.model_dump_json(), qos=1, properties=out_props)
+
+    async def reply_to(self, payload: bytes) -> Reply:
+        """The reply to one raw command payload (validated, refused or handled)."""
+        station = self.topics.station
+        command_name, request_id = _request_meta(payload)
+        echo = {"command": command_name, "request_id": request_id}
+        if len(payload) > MAX_COMMAND_BYTES:
+            return Reply(
+                ok=False,
+                **echo,
+                message=f"bad command: payload: {len(payload)} bytes, expected at most "
+                f"{MAX_COMMAND_BYTES}",
+            )
+        if not self.settings.commands_enabled:
+            return Reply(
+                ok=False,
+                **echo,
+                message=f"refused: commands are disabled on station {station} "
+                "(mqtt.commands_enabled = false)",
+            )
+        parsed = parse_command(payload)
+        if isinstance(parsed, Reply):
+            return parsed.model_copy(update=echo)
+        echo = {"command": parsed.command, "request_id": parsed.request_id}
+        if self._handle_command is None:
+            return Reply(ok=False, **echo, message=f"refused: station {station} takes no commands")
+        try:
+            reply = await self._handle_command(parsed)
+        except Exception as err:  # a failing handler must not take the link down
+            log.exception("command %s failed", parsed.command)
+            return Reply(ok=False, **echo, message=f"{parsed.command} failed: {err}")
+        return reply.model_copy(
+            update={
+                "command": reply.command or parsed.command,
+                "request_id": parsed.request_id,
+            }
+        )
+
+
+def raw_payload(payload: Any) -> bytes:
+    if isinstance(payload, bytes | bytearray):
+        return bytes(payload)
+    if payload is None:
+        return b""
+    return str(payload).encode()
+
+
+def _request_meta(payload: bytes) -> tuple[str | None, str | None]:
+    """Best-effort command name and request id from a payload, even an invalid one."""
+    try:
+        obj = json.loads(payload)
+    except (ValueError, UnicodeDecodeError):
+        return None, None
+    if not isinstance(obj, dict):
+        return None, None
+    command, request_id = obj.get("command"), obj.get("request_id")
+    return (
+        command if isinstance(command, str) else None,
+        request_id if isinstance(request_id, str) else None,
+    )
+
+
+def _valid_publish_topic(topic: str) -> bool:
+    return bool(topic) and not any(c in topic for c in "+#\x00") and len(topic.encode()) < 65536
