@@ -24,6 +24,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
         "measuring core",
         (
             "heft.daemon.physics",
+            "heft.daemon.quality",
             "heft.daemon.capture",
             "heft.daemon.capture_params",
             "heft.daemon.stillness",
