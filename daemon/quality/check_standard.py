@@ -95,7 +95,7 @@ def check_by_acceptance(
     start = _trailing_bad(bad)
     reason = (
         f"reading {series[latest]:g} differs from the known value {known:g} by "
-        f"{abs(series[latest] - known):g}, more than the acceptance limit {limit:g} "
+        f"{abs(series[latest] - known):.4g}, more than the acceptance limit {limit:.4g} "
         f"(E_n {errors[latest]:.2f})"
     )
     status = CheckStatus(False, latest, start - 1 if start > 0 else None, (reason,))
