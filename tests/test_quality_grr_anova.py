@@ -168,6 +168,9 @@ BALANCED = {
         ([r for r in _rows(BALANCED) if r.operator == "A"], "at least 2 parts and 2 operators"),
         (_rows({k: v[:1] for k, v in BALANCED.items()}), "at least 2 trials"),
         ([r._replace(trial=1.5) for r in _rows(BALANCED)], "whole number"),
+        ([(r.part, r.operator, r.value) for r in _rows(BALANCED)], "expected \\(part"),
+        ([r._replace(part=["1"]) for r in _rows(BALANCED)], "labels"),
+        ([r._replace(value=5.0) for r in _rows(BALANCED)], "no variation"),
     ],
 )  # fmt: skip
 def test_bad_studies_are_refused_with_a_clear_message(

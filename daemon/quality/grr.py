@@ -175,6 +175,11 @@ def gauge_rr(
         raise QualityInputError(f"f_test: expected 'msa' or 'random', got {f_test!r}")
     study = BalancedStudy.from_readings(readings)
     ss = sums_of_squares(study)
+    if ss.total == 0.0:
+        raise QualityInputError(
+            "readings: every value is the same, so the study shows no variation to split; "
+            "record the values at a finer resolution"
+        )
     full = anova_with_interaction(ss, f_test)
     additive = anova_pooled(ss)
     p_inter = full.row(INTERACTION).p

@@ -61,7 +61,13 @@ class BalancedStudy:
         parts: dict[Hashable, None] = {}
         operators: dict[Hashable, None] = {}
         for index, row in enumerate(readings):
+            if not isinstance(row, tuple) or len(row) != 4:
+                raise QualityInputError(
+                    f"readings[{index}]: expected (part, operator, trial, value), got {row!r}"
+                )
             part, operator, trial, value = row
+            if not isinstance(part, Hashable) or not isinstance(operator, Hashable):
+                raise QualityInputError(f"readings[{index}]: part and operator must be labels")
             where = f"readings[{index}] (part {part!r}, operator {operator!r}, trial {trial!r})"
             if isinstance(trial, bool) or not isinstance(trial, int):
                 raise QualityInputError(f"{where}: trial must be a whole number")

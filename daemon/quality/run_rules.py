@@ -155,8 +155,8 @@ class RuleMonitor:
 
     limits: ImrLimits
     rules: Collection[int] = ALL_RULES
-    _recent: list[float] = field(default_factory=list)
-    _count: int = 0
+    _recent: list[float] = field(default_factory=list, init=False)
+    _count: int = field(default=0, init=False)
 
     def __post_init__(self) -> None:
         self.rules = check_rules(self.rules)
