@@ -123,6 +123,8 @@ def test_plan_is_reproducible_from_its_seed_and_walkable() -> None:
     assert first is not None and first.operator == "Ann" and first.trial == 1
     assert plan.describe_next(0) == f"next: operator Ann, part {first.part}, trial 1"
     assert plan.describe_next(12) == "study complete" and plan.next_step(12) is None
+    clubs = study_plan(["7", "8", "9"], ["Ann", "Bo"], 2, seed=3, part_noun="club")
+    assert clubs.describe_next(0) == f"next: operator Ann, club {first.part}, trial 1"
     last = plan.next_step(11)
     assert last is not None and (last.operator, last.trial) == ("Bo", 2)
 

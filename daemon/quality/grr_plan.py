@@ -21,8 +21,8 @@ class StudyStep:
     operator: str
     part: str
 
-    def describe(self) -> str:
-        return f"operator {self.operator}, part {self.part}, trial {self.trial}"
+    def describe(self, part_noun: str = "part") -> str:
+        return f"operator {self.operator}, {part_noun} {self.part}, trial {self.trial}"
 
 
 @dataclass(frozen=True, slots=True)
@@ -32,6 +32,7 @@ class StudyPlan:
     trials: int
     seed: int | None
     steps: tuple[StudyStep, ...]
+    part_noun: str = "part"  # what the guided flow calls a part ("club", "shaft")
 
     def next_step(self, done: int) -> StudyStep | None:
         """The step after ``done`` readings have been taken; None when the study is complete."""
@@ -41,7 +42,7 @@ class StudyPlan:
 
     def describe_next(self, done: int) -> str:
         step = self.next_step(done)
-        return "study complete" if step is None else f"next: {step.describe()}"
+        return "study complete" if step is None else f"next: {step.describe(self.part_noun)}"
 
 
 def _labels(field: str, given: int | Sequence[str], default: Sequence[str]) -> tuple[str, ...]:
@@ -62,6 +63,7 @@ def study_plan(
     operators: int | Sequence[str],
     trials: int,
     seed: int | None = None,
+    part_noun: str = "part",
 ) -> StudyPlan:
     """Plan n parts x k operators x r trials; counts get names 1..n and A, B, C..."""
     part_names = _labels("parts", parts, [])
@@ -76,4 +78,4 @@ def study_plan(
             order = list(part_names)
             rng.shuffle(order)
             steps.extend(StudyStep(trial, operator, part) for part in order)
-    return StudyPlan(part_names, operator_names, trials, seed, tuple(steps))
+    return StudyPlan(part_names, operator_names, trials, seed, tuple(steps), part_noun)
