@@ -28,6 +28,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
         (
             "heft.daemon.physics",
             "heft.daemon.calc",
+            "heft.daemon.quality",
             "heft.daemon.capture",
             "heft.daemon.capture_params",
             "heft.daemon.stillness",
