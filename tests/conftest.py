@@ -1,13 +1,15 @@
-"""Shared fixtures: a real Mosquitto broker per test that wants one."""
+"""Shared fixtures: a real Mosquitto broker, and a real PostgreSQL, per test that wants one."""
 
 from __future__ import annotations
 
+import uuid
 from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
 
 from tests.mqtt_broker import Broker, free_port
+from tests.postgres_server import PostgresServer, create_database, drop_database
 
 
 @pytest.fixture
@@ -19,3 +21,26 @@ def broker(tmp_path: Path) -> Iterator[Broker]:
         yield b
     finally:
         b.stop()
+
+
+@pytest.fixture(scope="session")
+def postgres_server() -> Iterator[PostgresServer]:
+    """One throw-away PostgreSQL cluster for the whole run (initdb costs seconds)."""
+    server = PostgresServer()
+    try:
+        server.init()
+        server.start()
+        yield server
+    finally:
+        server.remove()
+
+
+@pytest.fixture
+def pg_dsn(postgres_server: PostgresServer) -> Iterator[str]:
+    """A fresh, empty database per test; dropped afterwards."""
+    name = f"t_{uuid.uuid4().hex[:16]}"
+    dsn = create_database(postgres_server, name)
+    try:
+        yield dsn
+    finally:
+        drop_database(postgres_server, name)
