@@ -5,11 +5,15 @@ from __future__ import annotations
 import uuid
 from collections.abc import Iterator
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import pytest
 
 from tests.mqtt_broker import Broker, free_port
 from tests.postgres_server import PostgresServer, create_database, drop_database
+
+if TYPE_CHECKING:
+    from psycopg import Connection
 
 
 @pytest.fixture
@@ -44,3 +48,14 @@ def pg_dsn(postgres_server: PostgresServer) -> Iterator[str]:
         yield dsn
     finally:
         drop_database(postgres_server, name)
+
+
+@pytest.fixture
+def plant_conn(pg_dsn: str) -> Iterator[Connection[Any]]:
+    """A connection to a fresh database laid out with the plant schema (all migrations)."""
+    from heft.daemon.plant.db import connect
+    from heft.daemon.plant.migrations import migrate
+
+    with connect(pg_dsn) as conn:
+        migrate(conn)
+        yield conn

@@ -11,7 +11,6 @@ SIGINT/SIGKILL of ``stop()`` reach it (a ``runuser`` wrapper would stand in betw
 from __future__ import annotations
 
 import contextlib
-import glob
 import os
 import pwd
 import shutil
@@ -33,14 +32,14 @@ UNPRIVILEGED_USER = "postgres"  # runs the server when the tests run as root
 def find_postgres_bindir() -> Path:
     """The newest PostgreSQL server binaries: /usr/lib/postgresql/<major>/bin, else PATH."""
 
-    def major(path: str) -> int:
+    def major(bindir: Path) -> int:
         with contextlib.suppress(ValueError):
-            return int(Path(path).parent.name)
+            return int(bindir.parent.name)
         return -1
 
-    for bindir in sorted(glob.glob("/usr/lib/postgresql/*/bin"), key=major, reverse=True):
-        if Path(bindir, "initdb").exists() and Path(bindir, "postgres").exists():
-            return Path(bindir)
+    for bindir in sorted(Path("/usr/lib/postgresql").glob("*/bin"), key=major, reverse=True):
+        if (bindir / "initdb").exists() and (bindir / "postgres").exists():
+            return bindir
     initdb = shutil.which("initdb")
     if initdb:
         bindir_path = Path(initdb).resolve().parent
@@ -194,4 +193,5 @@ def drop_database(server: PostgresServer, name: str) -> None:
     from psycopg import sql
 
     with psycopg.connect(server.dsn(), autocommit=True) as conn:
-        conn.execute(sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)").format(sql.Identifier(name)))
+        drop = sql.SQL("DROP DATABASE IF EXISTS {} WITH (FORCE)")
+        conn.execute(drop.format(sql.Identifier(name)))
