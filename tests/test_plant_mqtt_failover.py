@@ -6,6 +6,7 @@
 - Redundant collectors, each with a plain subscription and a session of its own, do: every
   collector gets every message, the survivors store them, and the idempotent writer makes the
   returning collector's copies no-ops. This is the design docs/plant.md recommends.
+- A database outage loses nothing either: no commit, no PUBACK, the broker keeps the message.
 """
 
 from __future__ import annotations
@@ -19,9 +20,12 @@ import aiomqtt
 import psycopg
 import pytest
 
+from heft.daemon.plant.db import connect
+from heft.daemon.plant.migrations import migrate
 from heft.daemon.plant.mqtt_ack import ack, collector_client, shared_filter
 from heft.daemon.plant.writer import Outcome, write_measurement
 from tests.mqtt_broker import Broker
+from tests.postgres_server import PostgresServer
 from tests.test_plant_mqtt_ack import (
     GROUP,
     WAIT_S,
@@ -103,3 +107,35 @@ async def test_redundant_collectors_store_everything_once_when_one_dies(
     rows = plant_conn.execute("SELECT seq FROM measurements ORDER BY seq").fetchall()
     assert rows == [(1,), (2,), (3,)]
     assert plant_conn.execute("SELECT * FROM measurement_gaps('bench-1')").fetchall() == []
+
+
+@pytest.mark.timeout(180)
+async def test_a_database_outage_leaves_the_message_with_the_broker(broker: Broker) -> None:
+    """The commit fails, so no PUBACK: the message waits in the session until the database is
+    back, then is stored (the 'PostgreSQL lost' row of docs/plant.md's failure table)."""
+    root = f"heft-dbdown-{uuid.uuid4().hex[:8]}"
+    server = PostgresServer()
+    try:
+        server.init()
+        server.start()
+        with connect(server.dsn()) as db:
+            migrate(db)
+        async with collector_client(broker.host, broker.port, "collector-db") as c:
+            await c.subscribe(f"{root}/+/measurement", qos=1)
+            sent = await publish_measurement(broker, root, 1)
+            held = await next_message(c)
+            with connect(server.dsn()) as db:
+                server.stop()  # the database goes away between receiving and committing
+                with pytest.raises(psycopg.OperationalError):
+                    write_measurement(db, bytes(held.payload))
+        # Not acknowledged; the collector left. The database comes back, and so does it.
+        server.start()
+        with connect(server.dsn()) as db:
+            async with collector_client(broker.host, broker.port, "collector-db") as c:
+                assert await _store(c, db, 1) == [(1, Outcome.STORED)]
+            stored = db.execute("SELECT payload FROM measurements").fetchall()
+        assert [json.dumps(p, sort_keys=True) for (p,) in stored] == [
+            json.dumps(json.loads(sent), sort_keys=True)
+        ]
+    finally:
+        server.remove()
