@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import subprocess
+import sys
 from datetime import datetime, timedelta
 from typing import Any
 
@@ -224,3 +226,15 @@ def test_the_writer_commits_its_own_transaction(pg_dsn: str) -> None:
         other.execute("SELECT 1")  # not autocommit: a transaction is now open
         with pytest.raises(PlantStoreError, match="open transaction"):
             write_measurement(other, make_measurement(2).model_dump_json())
+
+
+def test_importing_the_plant_store_does_not_import_psycopg() -> None:
+    """psycopg is loaded on the first connection only, not by importing (start-up time)."""
+    code = (
+        "import sys, heft.daemon.plant.writer, heft.daemon.plant.queries, "
+        "heft.daemon.plant.migrations; print('psycopg' in sys.modules)"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, timeout=60, check=True
+    )
+    assert done.stdout.strip() == "False"
