@@ -47,7 +47,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "heft.daemon.replay",
         ),
     ),
-    ("service and sinks", ("heft.daemon",)),
+    ("service and sinks", ("heft.daemon", "heft.daemon.plant")),
     ("dashboard", ("heft.tui",)),
     ("command line", ("heft.tui.cli", "heft.tui.commands")),
 )
