@@ -32,7 +32,10 @@ from pydantic import (
     BeforeValidator,
     ConfigDict,
     Field,
+    PlainSerializer,
+    PlainValidator,
     ValidationError,
+    WithJsonSchema,
     field_validator,
     model_validator,
 )
@@ -40,6 +43,7 @@ from pydantic import (
 from heft.daemon.capture_params import CaptureParams
 from heft.daemon.mqtt_settings import MqttSettings
 from heft.daemon.physics.swingweight import points_from_label
+from heft.drivers.reading import ChannelRef, ChannelRefError
 from heft.drivers.units import UnitError, parse_quantity
 
 NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
@@ -65,16 +69,30 @@ def _quantity(kind: str) -> BeforeValidator:
     return BeforeValidator(parse)
 
 
-def _channel_ref(value: object) -> object:
-    """``"scale"`` is shorthand for ``"scale/0"`` (a one-channel device)."""
-    if isinstance(value, str) and "/" not in value:
-        return f"{value}/0"
-    return value
+def _channel_ref(value: object) -> ChannelRef:
+    """A channel reference from its text; ``"scale"`` is shorthand for ``"scale/0"``."""
+    if isinstance(value, ChannelRef):
+        return value
+    if not isinstance(value, str):
+        raise ValueError(f"expected a channel reference text '<device>/<index>', got {value!r}")
+    try:
+        return ChannelRef.parse(value if "/" in value else f"{value}/0")
+    except ChannelRefError:  # say it about the text as written, not the expanded shorthand
+        raise ValueError(
+            f"{value!r} is not a channel reference; expected '<device>/<index>' such as "
+            "'beam/0' (or a one-channel device's name alone, for its channel 0)"
+        ) from None
 
 
 Length = Annotated[float, _quantity("length")]
 Mass = Annotated[float, _quantity("mass")]
-ChannelRef = Annotated[str, BeforeValidator(_channel_ref), Field(pattern=CHANNEL_PATTERN)]
+# Held as a ChannelRef, written and shown as its "<device>/<index>" text.
+ChannelField = Annotated[
+    ChannelRef,
+    PlainValidator(_channel_ref),
+    PlainSerializer(str, return_type=str),
+    WithJsonSchema({"type": "string", "pattern": CHANNEL_PATTERN}),
+]
 
 
 class _Section(BaseModel):
@@ -130,9 +148,9 @@ class TwoSupportGeometry(_Section):
     """Two supports (two scales, or two cells under one beam) at positions from the butt stop."""
 
     type: Literal["two_support"]
-    channel_a: ChannelRef = Field(description="support nearer the butt")
+    channel_a: ChannelField = Field(description="support nearer the butt")
     position_a_in: Length = Field(ge=0, description="from the butt stop")
-    channel_b: ChannelRef = Field(description="support nearer the head")
+    channel_b: ChannelField = Field(description="support nearer the head")
     position_b_in: Length = Field(ge=0, description="from the butt stop")
     position_u_in: Length = Field(
         default=0.02, ge=0, description="standard uncertainty of each support position"
@@ -148,17 +166,17 @@ class TwoSupportGeometry(_Section):
 
     @property
     def channels(self) -> tuple[str, ...]:
-        return (self.channel_a, self.channel_b)
+        return (str(self.channel_a), str(self.channel_b))
 
 
 class LeverBeamGeometry(_Section):
     """A beam pivoting at the fulcrum; a force read at a lever arm, plus a gram scale for W."""
 
     type: Literal["lever_beam"]
-    force_channel: ChannelRef = Field(description="load cell or scale under the lever arm")
+    force_channel: ChannelField = Field(description="load cell or scale under the lever arm")
     lever_arm_in: Length = Field(gt=0, description="from the pivot to the force reading")
     lever_arm_u_in: Length = Field(default=0.01, ge=0, description="standard uncertainty")
-    weight_channel: ChannelRef = Field(description="gram scale weighing the whole club")
+    weight_channel: ChannelField = Field(description="gram scale weighing the whole club")
     fulcrum_in: Length = Field(default=14.0, gt=0, description="pivot distance from the butt")
     pairing_window_s: float = Field(
         default=300.0, gt=0, description="a weighing and a beam reading further apart don't pair"
@@ -172,14 +190,14 @@ class LeverBeamGeometry(_Section):
 
     @property
     def channels(self) -> tuple[str, ...]:
-        return (self.force_channel, self.weight_channel)
+        return (str(self.force_channel), str(self.weight_channel))
 
 
 class SingleScaleGeometry(_Section):
     """One gram scale; the balance point is entered per club (command or scanner tag)."""
 
     type: Literal["single_scale"]
-    weight_channel: ChannelRef
+    weight_channel: ChannelField
     balance_point_u_in: Length = Field(
         default=0.07, ge=0, description="standard uncertainty of an entered balance point"
     )
@@ -190,7 +208,7 @@ class SingleScaleGeometry(_Section):
 
     @property
     def channels(self) -> tuple[str, ...]:
-        return (self.weight_channel,)
+        return (str(self.weight_channel),)
 
 
 Geometry = Annotated[
@@ -302,11 +320,8 @@ class StationConfig(_Section):
     @field_validator("channels")
     @classmethod
     def _channel_names(cls, value: dict[str, ChannelConfig]) -> dict[str, ChannelConfig]:
-        import re
-
         for name in value:
-            if not re.match(CHANNEL_PATTERN, name):
-                raise ValueError(f"channel name {name!r} is not of the form '<device>/<index>'")
+            ChannelRef.parse(name)  # raises naming the text and the expected form
         return value
 
     @model_validator(mode="after")
@@ -318,16 +333,17 @@ class StationConfig(_Section):
                 problems.append(("devices", f"device name {d.name!r} is used twice"))
             drivers[d.name] = d.driver
         read = dict(_geometry_channel_fields(self.geometry))
-        for field, channel in read.items():
-            why = _channel_problem(channel, drivers)
+        for field, ref in read.items():
+            why = _channel_problem(ref, drivers)
             if why is not None:
                 problems.append((f"geometry.{field}", why))
         for channel in self.channels:
-            why = _channel_problem(channel, drivers)
-            if why is None and channel not in read.values():
+            ref = ChannelRef.parse(channel)  # the key was checked by _channel_names
+            why = _channel_problem(ref, drivers)
+            if why is None and ref not in read.values():
                 why = (
                     f"the geometry reads no channel {channel!r} (it reads "
-                    f"{', '.join(sorted(set(read.values())))})"
+                    f"{', '.join(sorted({str(r) for r in read.values()}))})"
                 )
             if why is not None:
                 problems.append((f"channels.{channel}", why))
@@ -380,23 +396,23 @@ DRIVER_CHANNELS: dict[str, int] = {
 }
 
 
-def _channel_problem(channel: str, drivers: dict[str, str]) -> str | None:
-    """Why ``channel`` ('<device>/<n>') is not a weight channel of a configured device."""
-    device, _, index = channel.partition("/")
+def _channel_problem(ref: ChannelRef, drivers: dict[str, str]) -> str | None:
+    """Why ``ref`` is not a weight channel of a configured device."""
+    channel, device = str(ref), ref.device
     driver = drivers.get(device)
     if driver is None:
         return f"{channel!r} names no device; devices: {sorted(drivers)}"
     count = DRIVER_CHANNELS.get(driver)
     if count == 0:
         return f"{channel!r} is a {driver}, which reads club ids, not weights"
-    if count is not None and int(index) >= count:
+    if count is not None and ref.index >= count:
         return f"{channel!r}: a {driver} device reads only {device}/0"
     return None
 
 
-def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, str]]:
+def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, ChannelRef]]:
     return [
-        (name, str(getattr(geometry, name)))
+        (name, getattr(geometry, name))
         for name in type(geometry).model_fields
         if name.endswith("channel") or name.startswith("channel_")
     ]

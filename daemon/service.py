@@ -13,8 +13,13 @@ and closes every port):
 * the ticker: capture timeouts, device status, calibration due dates, the systemd watchdog;
 * the MQTT link (``daemon.mqtt_link``) when ``[mqtt] enabled``.
 
-Every event the pipeline makes goes to the :class:`~daemon.events.EventBus` (the dashboard, the
-MQTT link and tests subscribe); alarm changes also go to the alarm log in SQLite.
+The service routes what the pipeline hands out (``BenchPipeline`` steps return their outputs):
+measurements to the store, then the bus; alarm conditions to the station's one
+:class:`~heft.daemon.alarms.AlarmManager`, whose changes go to the alarm log in SQLite and the
+bus; everything else to the :class:`~heft.daemon.events.EventBus` (the dashboard, the MQTT link
+and tests subscribe). Calibration commands go to the calibration part
+(:mod:`heft.daemon.calibration_workflow`), which sees the pipeline and the store through a
+narrow seam.
 """
 
 from __future__ import annotations
@@ -23,7 +28,7 @@ import asyncio
 import contextlib
 import logging
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -32,18 +37,12 @@ from typing import Any
 from tenacity import AsyncRetrying, retry_if_exception_type, wait_exponential
 
 from heft.daemon import command_api as api
-from heft.daemon.alarms import UnknownAlarmError
-from heft.daemon.calibration import (
-    CalibrationError,
-    CountsWindow,
-    active_record,
-    counts_to_g,
-    default_verify_tolerance_g,
-    due_status,
-    span_record,
-    usable,
-    verify_record,
-    zero_record,
+from heft.daemon.alarms import AlarmCondition, AlarmManager, UnknownAlarmError
+from heft.daemon.calibration import CalibrationError
+from heft.daemon.calibration_workflow import (
+    CalibrationWorkflow,
+    StepResult,
+    stored_calibrations,
 )
 from heft.daemon.config import DeviceConfig, StationConfig
 from heft.daemon.events import (
@@ -51,18 +50,17 @@ from heft.daemon.events import (
     AlarmChanged,
     AlarmKind,
     DeviceStatus,
-    Event,
     EventBus,
     MeasurementCaptured,
 )
 from heft.daemon.measurement import Measurement
 from heft.daemon.mqtt_link import MqttLink
-from heft.daemon.pipeline import BenchPipeline, SelectionError
-from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.daemon.pipeline import BenchPipeline, PipelineOutput, SelectionError
+from heft.daemon.records import ReferenceMass
 from heft.daemon.sd_notify import notify, watchdog_interval_s
 from heft.daemon.storage import StorageError, Store
 from heft.drivers.base import DriverError, TransportError, UnsupportedCommand
-from heft.drivers.reading import DeviceInfo, Reading
+from heft.drivers.reading import ChannelRef, DeviceInfo, Reading
 from heft.drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
 from heft.drivers.registry import create_driver
 from heft.drivers.session import DeviceSession
@@ -73,8 +71,6 @@ log = logging.getLogger("heft.service")
 TICK_S = 0.2
 DEVICE_STATUS_EVERY_S = 1.0
 CALIBRATION_CHECK_EVERY_S = 60.0
-CALIBRATION_WINDOW_S = 1.5
-ZERO_SHIFT_LIMIT_FRACTION = 0.04  # of capacity; OIML R 76-1 4.5.1
 RECONNECT_MAX_WAIT_S = 5.0
 STORE_RETRY_MAX_WAIT_S = 10.0
 MQTT_RETRY_MAX_WAIT_S = 5.0  # a broker back after an outage is found within this long
@@ -131,10 +127,12 @@ class Service:
         self._clock = clock
         self._clock_utc = clock_utc
         self.pipeline: BenchPipeline | None = None
+        self.calibration: CalibrationWorkflow | None = None
+        # The station's alarms: conditions from the pipeline, the calibration part and the
+        # service itself (devices, storage) all land here, and each change is logged and sent.
+        self.alarms = AlarmManager(config.station, clock_utc, self._alarm_changed)
         self.devices = {d.name: DeviceRuntime(d) for d in config.devices}
         self._to_store: asyncio.Queue[Measurement] | None = None
-        self._pending_zero: dict[str, CalibrationRecord] = {}
-        self._calibrating: set[str] = set()
         self.stored_count = 0
         self.mqtt_link: MqttLink | None = None
         self.ready = asyncio.Event()
@@ -157,16 +155,14 @@ class Service:
                 self.store = None
 
     async def _run(self, store: Store) -> None:
-        calibrations: dict[str, CalibrationRecord] = {}
-        for channel in self.config.channels:
-            record = active_record(store.calibrations(channel))
-            if record is not None:
-                calibrations[channel] = record
         self.pipeline = BenchPipeline(
             self.config,
             self._clock_utc,
-            calibrations=calibrations,
+            calibrations=stored_calibrations(store, self.config.channels),
             first_seq=store.next_seq(self.config.station),
+        )
+        self.calibration = CalibrationWorkflow(
+            self.config, self.pipeline, store, self._apply_alarm, self._clock_utc
         )
         self._to_store = asyncio.Queue()
         # Alarms left active by the last run are re-evaluated now: close them in the log.
@@ -176,7 +172,7 @@ class Service:
                     Alarm(stale.station, stale.kind, stale.source, False,
                           "service restarted; re-evaluated", self._clock_utc())
                 )
-        self._check_calibrations()
+        self.calibration.check_due()
         async with asyncio.TaskGroup() as tasks:
             for runtime in self.devices.values():
                 tasks.create_task(self._supervise(runtime), name=f"device-{runtime.config.name}")
@@ -202,16 +198,24 @@ class Service:
 
     # ------------------------------------------------------------------------------ events
 
-    def _dispatch(self, events: list[Event]) -> None:
-        """Send pipeline events on; measurements go to the store first (published after)."""
-        for ev in events:
-            if isinstance(ev, MeasurementCaptured):
+    def _route(self, outputs: Iterable[PipelineOutput]) -> None:
+        """Send pipeline outputs on, in order; measurements go to the store first (published
+        after), alarm conditions to the station's alarms."""
+        for out in outputs:
+            if isinstance(out, MeasurementCaptured):
                 assert self._to_store is not None
-                self._to_store.put_nowait(ev.measurement)
-                continue
-            if isinstance(ev, AlarmChanged):
-                self._log_alarm(ev.alarm)
-            self.bus.publish(ev)
+                self._to_store.put_nowait(out.measurement)
+            elif isinstance(out, AlarmCondition):
+                self._apply_alarm(out)
+            else:
+                self.bus.publish(out)
+
+    def _apply_alarm(self, condition: AlarmCondition) -> None:
+        self.alarms.apply(condition)  # a change comes back through _alarm_changed
+
+    def _alarm_changed(self, alarm: Alarm) -> None:
+        self._log_alarm(alarm)
+        self.bus.publish(AlarmChanged(alarm))
 
     def _log_alarm(self, alarm: Alarm) -> None:
         if self.store is None:
@@ -256,14 +260,10 @@ class Service:
         )
 
     def _alarm_set(self, kind: AlarmKind, source: str, active: bool, message: str) -> None:
-        if self.pipeline is None:
+        """The service's own alarms (devices, storage): the first wording stays while active."""
+        if active and self.alarms.is_active(kind, source):
             return
-        alarms = self.pipeline.alarms
-        if not active:
-            alarms.clear(kind, source, message)
-        elif not alarms.is_active(kind, source):  # keep the first wording while it lasts
-            alarms.raise_alarm(kind, source, message)
-        self._dispatch(self.pipeline.drain())
+        self._apply_alarm(AlarmCondition(kind, source, active, message))
 
     # ------------------------------------------------------------------------------ devices
 
@@ -344,7 +344,7 @@ class Service:
                     runtime.last_t_mono_s = output.t_mono_s
                 elif isinstance(output, DeviceInfo):
                     self._check_channel_count(output)
-                self._dispatch(self.pipeline.feed(output))
+                self._route(self.pipeline.feed(output))
         finally:
             runtime.session = None
         raise TransportError(f"device {runtime.config.name!r}: the port closed")
@@ -356,9 +356,9 @@ class Service:
         have would otherwise never read anything, silently.
         """
         wanted = sorted({*self.config.geometry.channels, *self.config.channels})
+        refs = [ChannelRef.parse(ch) for ch in wanted]
         missing = [
-            ch for ch in wanted
-            if ch.split("/")[0] == info.device and int(ch.split("/")[1]) >= info.channels
+            str(ref) for ref in refs if ref.device == info.device and ref.index >= info.channels
         ]
         if missing:
             log.error(
@@ -395,7 +395,7 @@ class Service:
             )
         runtime.down_logged = True
         assert self.pipeline is not None
-        self._dispatch(self.pipeline.device_lost(name))
+        self._route(self.pipeline.device_lost(name))
         self._alarm_set(
             AlarmKind.DEVICE_OFFLINE,
             name,
@@ -433,7 +433,7 @@ class Service:
         while True:
             await asyncio.sleep(TICK_S)
             now = self._clock()
-            self._dispatch(self.pipeline.tick(now))
+            self._route(self.pipeline.tick(now))
             for runtime in self.devices.values():
                 # A device allowed to be quiet (a scanner) counts as connected once its port is
                 # open; the others once they have sent something.
@@ -454,31 +454,12 @@ class Service:
                         runtime.rate_t0, runtime.rate_n0 = now, runtime.readings
                     self._publish_device(runtime)
                 last_status = now
-            if now - last_cal >= CALIBRATION_CHECK_EVERY_S:
-                self._check_calibrations()
+            if now - last_cal >= CALIBRATION_CHECK_EVERY_S and self.calibration is not None:
+                self.calibration.check_due()
                 last_cal = now
             if watchdog is not None and now - last_dog >= watchdog:
                 notify("WATCHDOG=1")
                 last_dog = now
-
-    def _check_calibrations(self) -> None:
-        """Raise or clear calibration due/overdue alarms for every database-calibrated channel."""
-        assert self.pipeline is not None
-        today = self._clock_utc().date()
-        for channel in self.pipeline.channels:
-            cfg = self.config.channel(channel)
-            if cfg.source != "database" or not self._is_counts_channel(channel):
-                continue
-            status = due_status(channel, self.pipeline.calibrations.get(channel), cfg, today)
-            for kind in (AlarmKind.CALIBRATION_DUE, AlarmKind.CALIBRATION_OVERDUE):
-                active = status is not None and status.kind is kind
-                self.pipeline.alarms.set(kind, channel, active, status.message if status else "")
-        self._dispatch(self.pipeline.drain())
-
-    def _is_counts_channel(self, channel: str) -> bool:
-        """Channels of load-cell drivers read raw counts and need a calibration."""
-        device = channel.split("/")[0]
-        return self.config.device(device).driver == "beam" or channel in self.config.channels
 
     # ------------------------------------------------------------------------------ commands
 
@@ -501,13 +482,13 @@ class Service:
         p = self.pipeline
         assert p is not None
         if isinstance(cmd, api.Tare):
-            channels = p.tare(self._known_device(cmd.device))
-            self._dispatch(p.drain())
-            return f"tared {', '.join(channels)}", {"channels": channels}
+            tared = p.tare(self._known_device(cmd.device))
+            self._route(tared.outputs)
+            return f"tared {', '.join(tared.channels)}", {"channels": tared.channels}
         if isinstance(cmd, api.Zero):
             return await self._zero(cmd.device)
         if isinstance(cmd, api.Rearm):
-            self._dispatch(p.rearm())
+            self._route(p.rearm())
             return "re-armed", {}
         if isinstance(cmd, api.SelectJob):
             p.select_job(cmd.job)
@@ -519,19 +500,13 @@ class Service:
             p.set_club_id(cmd.club_id)
             return f"next club is {p.club_id}", {"club_id": p.club_id}
         if isinstance(cmd, api.SetBalancePoint):
-            self._dispatch(p.set_balance_point(cmd.balance_point))
+            self._route(p.set_balance_point(cmd.balance_point))
             bp = p.entered_balance_point_in
             return f"balance point {bp:.2f} in set", {"balance_point_in": bp}
         if isinstance(cmd, api.AcknowledgeAlarm):
-            alarm = p.alarms.acknowledge(cmd.key)
-            self._dispatch(p.drain())
+            alarm = self.alarms.acknowledge(cmd.key)
             return f"acknowledged {alarm.key}", {"key": alarm.key}
-        if isinstance(cmd, api.CalibrateZero):
-            return await self._calibrate_zero(cmd.channel)
-        if isinstance(cmd, api.CalibrateSpan):
-            return await self._calibrate_span(cmd)
-        assert isinstance(cmd, api.VerifyCheckMass)
-        return await self._verify(cmd)
+        return await self._calibrate(cmd)
 
     def _known_device(self, device: str | None) -> str | None:
         if device is not None and device not in self.devices:
@@ -557,153 +532,27 @@ class Service:
                     raise SelectionError(f"device {name} refused to zero: {reply.detail}")
                 done.append(name)
             else:
-                self.pipeline.tare(name)
+                self._route(self.pipeline.tare(name).outputs)
                 done.append(name)
-        self._dispatch(self.pipeline.drain())
         return f"zeroed {', '.join(done)}", {"devices": done}
 
-    def _counts_channel(self, channel: str) -> str:
-        assert self.pipeline is not None
-        if channel not in self.pipeline.channels:
-            raise SelectionError(
-                f"no channel {channel!r} in the geometry; channels: "
-                f"{', '.join(self.pipeline.channels)}"
-            )
-        if not self._is_counts_channel(channel):
-            raise SelectionError(f"{channel} is a gram scale; calibrate it with its own menu")
-        if self.config.channel(channel).source == "config":
-            raise SelectionError(
-                f"{channel} takes its calibration from the config (source = 'config')"
-            )
-        if channel in self._calibrating:
-            raise SelectionError(f"{channel} is already being calibrated")
-        return channel
-
-    async def _window(self, channel: str, step: str) -> CountsWindow:
-        """Raw counts over the next CALIBRATION_WINDOW_S seconds, refused unless still.
-
-        A window with a load lifted, set down or swinging in it would average the motion into
-        the zero or span and offset every later weight (daemon.stillness says when it is still).
-        """
-        assert self.pipeline is not None
-        self._calibrating.add(channel)
-        try:
-            start = self.pipeline.last_t
-            await asyncio.sleep(CALIBRATION_WINDOW_S)
-            counts = self.pipeline.recent_raw(channel, start + 1e-9)
-        finally:
-            self._calibrating.discard(channel)
-        window = CountsWindow.of(counts)
-        why = self.pipeline.motion(channel, counts, in_grams=False)
-        if why is not None:
-            raise CalibrationError(
-                f"{channel} was moving during the {step}: {why}; hold it still and try again"
-            )
-        return window
-
-    async def _store_calibration(self, record: CalibrationRecord) -> None:
-        assert self.store is not None
-        await asyncio.to_thread(self.store.add_calibration, record)
-
-    async def _calibrate_zero(self, channel: str) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(channel)
-        if self.pipeline.is_loaded(channel):
-            raise CalibrationError(
-                f"{channel} has a load on it; lift the club off and zero with the supports empty"
-            )
-        window = await self._window(channel, "zero")
-        if self.pipeline.is_loaded(channel):
-            raise CalibrationError(
-                f"{channel} was loaded during the zero; lift the club off and zero with the "
-                "supports empty"
-            )
-        current = self.pipeline.calibrations.get(channel)
-        self._check_zero_shift(channel, window, current)
-        record = zero_record(
-            self.config.station, channel, window, self._clock_utc(), current,
-            self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        self._pending_zero[channel] = record
-        if usable(record):
-            self.pipeline.set_calibration(record)
-            text = f"{channel} zeroed at {record.zero_counts:.0f} counts"
+    async def _calibrate(
+        self, cmd: api.CalibrateZero | api.CalibrateSpan | api.VerifyCheckMass
+    ) -> tuple[str, dict[str, Any]]:
+        """A calibration step, done by the calibration part."""
+        calibration = self.calibration
+        assert calibration is not None
+        if isinstance(cmd, api.CalibrateZero):
+            done: StepResult = await calibration.zero(cmd.channel)
         else:
-            text = f"{channel} zero taken ({record.zero_counts:.0f} counts); span next"
-        return text, {"calibration": record.model_dump(mode="json")}
-
-    def _check_zero_shift(
-        self, channel: str, window: CountsWindow, current: CalibrationRecord | None
-    ) -> None:
-        """Refuse a new zero that moves the old one by more than 4 % of capacity.
-
-        A zero-setting device may not act on more than 4 % of Max (OIML R 76-1 4.5.1); a larger
-        shift on a calibrated channel means something is resting on the beam, not drift.
-        """
-        if current is None or not usable(current):
-            return  # first zero of a new channel: nothing to compare with
-        shift_g = counts_to_g(current, window.mean_counts)
-        limit_g = ZERO_SHIFT_LIMIT_FRACTION * self.config.capture.capacity_for(channel)
-        if abs(shift_g) > limit_g:
-            raise CalibrationError(
-                f"{channel} reads {shift_g:+.1f} g against its current zero, more than the "
-                f"{limit_g:.0f} g (4 % of capacity) a zero may move; is something on the beam?"
+            reference = ReferenceMass(
+                mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
             )
-
-    async def _calibrate_span(self, cmd: api.CalibrateSpan) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(cmd.channel)
-        current = self.pipeline.calibrations.get(channel)
-        zero = self._pending_zero.get(channel) or current
-        if zero is None:
-            raise CalibrationError(f"{channel} has no zero; run calibrate_zero with it empty first")
-        window = await self._window(channel, "span")
-        reference = ReferenceMass(
-            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
-        )
-        record = span_record(
-            self.config.station, channel, zero, window, reference, self._clock_utc(),
-            self.config.channel(channel).calibration_interval_days, current,
-            self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        self._pending_zero.pop(channel, None)
-        self.pipeline.set_calibration(record)
-        self._check_calibrations()
-        text = f"{channel} spanned: {record.counts_per_g:.3f} counts/g, due {record.next_due}"
-        return text, {"calibration": record.model_dump(mode="json")}
-
-    async def _verify(self, cmd: api.VerifyCheckMass) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(cmd.channel)
-        current = self.pipeline.calibrations.get(channel)
-        if current is None or not usable(current):
-            raise CalibrationError(f"{channel} has no span yet; calibrate the span first")
-        window = await self._window(channel, "verify")
-        reference = ReferenceMass(
-            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
-        )
-        tolerance = cmd.tolerance_g or default_verify_tolerance_g(
-            cmd.mass_g, self.config.capture.division_for(channel)
-        )
-        record = verify_record(
-            self.config.station, channel, current, window, reference, tolerance,
-            self._clock_utc(), self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        if not record.passed:
-            self.pipeline.alarms.raise_alarm(
-                AlarmKind.CALIBRATION_DUE,
-                channel,
-                f"{channel} failed verification: read {record.result_g:.2f} g on a "
-                f"{cmd.mass_g:g} g check mass",
-            )
-            self._dispatch(self.pipeline.drain())
-        verdict = "passed" if record.passed else "FAILED"
-        text = (
-            f"{channel} verify {verdict}: {record.result_g:.2f} g on {cmd.mass_g:g} g "
-            f"(residual {record.residual_g:+.2f} g, tolerance {tolerance:g} g)"
-        )
-        return text, {"calibration": record.model_dump(mode="json"), "passed": record.passed}
-
+            if isinstance(cmd, api.CalibrateSpan):
+                done = await calibration.span(cmd.channel, reference)
+            else:
+                done = await calibration.verify(cmd.channel, reference, cmd.tolerance_g)
+        data: dict[str, Any] = {"calibration": done.record.model_dump(mode="json")}
+        if done.record.kind == "verify":
+            data["passed"] = done.record.passed
+        return done.message, data

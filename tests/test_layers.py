@@ -28,6 +28,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "heft.daemon.capture_params",
             "heft.daemon.stillness",
             "heft.daemon.pipeline",
+            "heft.daemon.club_measure",
             "heft.daemon.specs",
             "heft.daemon.alarms",
             "heft.daemon.calibration",
