@@ -17,9 +17,9 @@ The service routes what the pipeline hands out (``BenchPipeline`` steps return t
 measurements to the store, then the bus; alarm conditions to the station's one
 :class:`~heft.daemon.alarms.AlarmManager`, whose changes go to the alarm log in SQLite and the
 bus; everything else to the :class:`~heft.daemon.events.EventBus` (the dashboard, the MQTT link
-and tests subscribe). Calibration commands go to the calibration part
-(:mod:`heft.daemon.calibration_workflow`), which sees the pipeline and the store through a
-narrow seam.
+and tests subscribe). Commands are carried out by :mod:`heft.daemon.station_commands`, and
+calibration steps by the calibration part (:mod:`heft.daemon.calibration_workflow`); each sees
+the pipeline through a small named Protocol.
 """
 
 from __future__ import annotations
@@ -37,11 +37,9 @@ from typing import Any
 from tenacity import AsyncRetrying, retry_if_exception_type, wait_exponential
 
 from heft.daemon import command_api as api
-from heft.daemon.alarms import AlarmCondition, AlarmManager, UnknownAlarmError
-from heft.daemon.calibration import CalibrationError
+from heft.daemon.alarms import AlarmCondition, AlarmManager
 from heft.daemon.calibration_workflow import (
     CalibrationWorkflow,
-    StepResult,
     stored_calibrations,
 )
 from heft.daemon.config import DeviceConfig, StationConfig
@@ -56,10 +54,10 @@ from heft.daemon.events import (
 from heft.daemon.measurement import Measurement
 from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.pipeline import BenchPipeline, PipelineOutput, SelectionError
-from heft.daemon.records import ReferenceMass
 from heft.daemon.sd_notify import notify, watchdog_interval_s
+from heft.daemon.station_commands import StationCommands
 from heft.daemon.storage import StorageError, Store
-from heft.drivers.base import DriverError, TransportError, UnsupportedCommand
+from heft.drivers.base import DriverError, TransportError
 from heft.drivers.reading import ChannelRef, DeviceInfo, Reading
 from heft.drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
 from heft.drivers.registry import create_driver
@@ -128,6 +126,7 @@ class Service:
         self._clock_utc = clock_utc
         self.pipeline: BenchPipeline | None = None
         self.calibration: CalibrationWorkflow | None = None
+        self.commands: StationCommands | None = None
         # The station's alarms: conditions from the pipeline, the calibration part and the
         # service itself (devices, storage) all land here, and each change is logged and sent.
         self.alarms = AlarmManager(config.station, clock_utc, self._alarm_changed)
@@ -155,16 +154,16 @@ class Service:
                 self.store = None
 
     async def _run(self, store: Store) -> None:
-        self.pipeline = BenchPipeline(
-            self.config,
-            self._clock_utc,
-            calibrations=stored_calibrations(store, self.config.channels),
-            first_seq=store.next_seq(self.config.station),
+        self._assemble(
+            BenchPipeline(
+                self.config,
+                self._clock_utc,
+                calibrations=stored_calibrations(store, self.config.channels),
+                first_seq=store.next_seq(self.config.station),
+            ),
+            store,
         )
-        self.calibration = CalibrationWorkflow(
-            self.config, self.pipeline, store, self._apply_alarm, self._clock_utc
-        )
-        self._to_store = asyncio.Queue()
+        assert self.calibration is not None
         # Alarms left active by the last run are re-evaluated now: close them in the log.
         for stale in store.active_alarms(self.config.station):
             with contextlib.suppress(StorageError):
@@ -183,6 +182,18 @@ class Service:
             self.ready.set()
             notify("READY=1")
             log.info("station %s running: %d device(s)", self.config.station, len(self.devices))
+
+    def _assemble(self, pipeline: BenchPipeline, store: Store) -> None:
+        """Wire the parts that live while the service runs around ``pipeline`` and ``store``."""
+        self.pipeline = pipeline
+        self._to_store = asyncio.Queue()
+        self.calibration = CalibrationWorkflow(
+            self.config, pipeline, store, self._apply_alarm, self._clock_utc
+        )
+        self.commands = StationCommands(
+            pipeline, self.calibration, self.alarms, self._route,
+            {name: rt.config.driver for name, rt in self.devices.items()}, self._zero_scale,
+        )
 
     async def _mqtt(self) -> None:
         assert self.store is not None
@@ -465,94 +476,16 @@ class Service:
 
     async def handle_command(self, cmd: api.Command) -> api.Reply:
         """Carry out one command; always returns a Reply (ok=False naming what was wrong)."""
-        name = cmd.command
-        rid = cmd.request_id
-        if self.pipeline is None:
-            return api.Reply(ok=False, command=name, request_id=rid, message="service not running")
-        try:
-            message, data = await self._execute(cmd)
-        except (SelectionError, CalibrationError, UnknownAlarmError, UnsupportedCommand) as err:
-            text = str(err) if not isinstance(err, KeyError) else f"no active alarm {err.args[0]!r}"
-            return api.Reply(ok=False, command=name, request_id=rid, message=text)
-        except (TransportError, StorageError) as err:
-            return api.Reply(ok=False, command=name, request_id=rid, message=str(err))
-        return api.Reply(ok=True, command=name, request_id=rid, message=message, data=data)
+        if self.commands is None:
+            return api.Reply(ok=False, command=cmd.command, request_id=cmd.request_id,
+                             message="service not running")
+        return await self.commands.handle(cmd)
 
-    async def _execute(self, cmd: api.Command) -> tuple[str, dict[str, Any]]:
-        p = self.pipeline
-        assert p is not None
-        if isinstance(cmd, api.Tare):
-            tared = p.tare(self._known_device(cmd.device))
-            self._route(tared.outputs)
-            return f"tared {', '.join(tared.channels)}", {"channels": tared.channels}
-        if isinstance(cmd, api.Zero):
-            return await self._zero(cmd.device)
-        if isinstance(cmd, api.Rearm):
-            self._route(p.rearm())
-            return "re-armed", {}
-        if isinstance(cmd, api.SelectJob):
-            p.select_job(cmd.job)
-            return f"job {p.job} (spec {p.spec_name})", {"job": p.job, "spec": p.spec_name}
-        if isinstance(cmd, api.SelectSpec):
-            p.select_spec(cmd.spec, cmd.club)
-            return f"spec {p.spec_name}", {"spec": p.spec_name, "club": p.club}
-        if isinstance(cmd, api.SetClubId):
-            p.set_club_id(cmd.club_id)
-            return f"next club is {p.club_id}", {"club_id": p.club_id}
-        if isinstance(cmd, api.SetBalancePoint):
-            self._route(p.set_balance_point(cmd.balance_point))
-            bp = p.entered_balance_point_in
-            return f"balance point {bp:.2f} in set", {"balance_point_in": bp}
-        if isinstance(cmd, api.AcknowledgeAlarm):
-            alarm = self.alarms.acknowledge(cmd.key)
-            return f"acknowledged {alarm.key}", {"key": alarm.key}
-        return await self._calibrate(cmd)
-
-    def _known_device(self, device: str | None) -> str | None:
-        if device is not None and device not in self.devices:
-            raise SelectionError(f"no device {device!r}; devices: {', '.join(self.devices)}")
-        return device
-
-    async def _zero(self, device: str | None) -> tuple[str, dict[str, Any]]:
-        """Zero a scale with its own command; load-cell channels are zeroed by a tare."""
-        assert self.pipeline is not None
-        names = [self._known_device(device)] if device is not None else list(self.devices)
-        done: list[str] = []
-        for name in names:
-            assert name is not None
-            runtime = self.devices[name]
-            if runtime.config.driver == "scanner":
-                continue
-            session = runtime.session
-            if runtime.config.driver != "beam":
-                if session is None:
-                    raise TransportError(f"device {name!r} is not connected")
-                reply = await session.send_command("zero", reply_timeout_s=2.0)
-                if reply is not None and not reply.ok:
-                    raise SelectionError(f"device {name} refused to zero: {reply.detail}")
-                done.append(name)
-            else:
-                self._route(self.pipeline.tare(name).outputs)
-                done.append(name)
-        return f"zeroed {', '.join(done)}", {"devices": done}
-
-    async def _calibrate(
-        self, cmd: api.CalibrateZero | api.CalibrateSpan | api.VerifyCheckMass
-    ) -> tuple[str, dict[str, Any]]:
-        """A calibration step, done by the calibration part."""
-        calibration = self.calibration
-        assert calibration is not None
-        if isinstance(cmd, api.CalibrateZero):
-            done: StepResult = await calibration.zero(cmd.channel)
-        else:
-            reference = ReferenceMass(
-                mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
-            )
-            if isinstance(cmd, api.CalibrateSpan):
-                done = await calibration.span(cmd.channel, reference)
-            else:
-                done = await calibration.verify(cmd.channel, reference, cmd.tolerance_g)
-        data: dict[str, Any] = {"calibration": done.record.model_dump(mode="json")}
-        if done.record.kind == "verify":
-            data["passed"] = done.record.passed
-        return done.message, data
+    async def _zero_scale(self, name: str) -> None:
+        """Send a scale its own zero command."""
+        session = self.devices[name].session
+        if session is None:
+            raise TransportError(f"device {name!r} is not connected")
+        reply = await session.send_command("zero", reply_timeout_s=2.0)
+        if reply is not None and not reply.ok:
+            raise SelectionError(f"device {name} refused to zero: {reply.detail}")

@@ -26,6 +26,8 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "heft.daemon.physics",
             "heft.daemon.capture",
             "heft.daemon.capture_params",
+            "heft.daemon.capture_channel",
+            "heft.daemon.capture_outputs",
             "heft.daemon.stillness",
             "heft.daemon.pipeline",
             "heft.daemon.club_measure",
