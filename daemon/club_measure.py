@@ -27,6 +27,16 @@ from heft.daemon.records import CalibrationRecord
 from heft.daemon.specs import SpecJudgement
 from heft.drivers.reading import ChannelRef
 
+# Namespace of the deterministic measurement ids that replay gives (uuid5 of recording + seq).
+REPLAY_NAMESPACE = uuid.UUID("6f1d3c52-4a8e-5b7e-9a51-2c3e7d1b0a94")
+
+
+def measurement_id(replay_source: str | None, seq: int) -> uuid.UUID:
+    """A new random id; in replay the same recording and seq always give the same id."""
+    if replay_source is not None:
+        return uuid.uuid5(REPLAY_NAMESPACE, f"{replay_source}#{seq}")
+    return uuid.uuid4()
+
 
 def reading_u(params: CaptureParams, channel: str, w: WindowStats) -> UncertainValue:
     """Window mean with its standard uncertainty: repeatability and the net resolution."""

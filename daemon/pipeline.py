@@ -28,7 +28,6 @@ from __future__ import annotations
 
 import logging
 import math
-import uuid
 from collections import deque
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -38,7 +37,8 @@ from heft.daemon.alarms import AlarmCondition
 from heft.daemon.calibration import config_record, counts_to_g, usable
 from heft.daemon.capture import Captured, CaptureEngine, StateChanged, WindowStats
 from heft.daemon.capture import Warning as CaptureWarning
-from heft.daemon.club_measure import club_numbers, measurement_of
+from heft.daemon.club_measure import REPLAY_NAMESPACE as REPLAY_NAMESPACE
+from heft.daemon.club_measure import club_numbers, measurement_id, measurement_of
 from heft.daemon.config import (
     LeverBeamGeometry,
     SingleScaleGeometry,
@@ -56,26 +56,27 @@ from heft.daemon.events import (
 from heft.daemon.measurement import Verdict
 from heft.daemon.physics.statics import StaticsError
 from heft.daemon.records import CalibrationRecord
+from heft.daemon.selection import SelectionError as SelectionError
+from heft.daemon.selection import (
+    balance_point_in,
+    check_spec,
+    clean_club_id,
+    spec_of_job,
+    split_tag,
+)
 from heft.daemon.specs import judge
 from heft.daemon.stillness import motion
 from heft.daemon.version import __version__
 from heft.drivers.reading import ChannelRef, ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
-from heft.drivers.units import UnitError, parse_quantity
 
 log = logging.getLogger("heft.pipeline")
 
 # Raw values kept per channel for tare and calibration windows (80 samples/s for ~25 s).
 RECENT_SAMPLES = 2048
-# Namespace of the deterministic measurement ids that replay gives (uuid5 of recording + seq).
-REPLAY_NAMESPACE = uuid.UUID("6f1d3c52-4a8e-5b7e-9a51-2c3e7d1b0a94")
 
 
 # What a pipeline step hands out, in order (events for the bus, and alarm conditions).
 PipelineOutput = LiveReading | CaptureStateChanged | MeasurementCaptured | AlarmCondition
-
-
-class SelectionError(ValueError):
-    """A job, spec, club or balance point that cannot be selected; the message says why."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,7 +146,6 @@ class BenchPipeline:
         self.club_id: str | None = None
         self.balance_point_in: float | None = None  # waiting for its weighing
         self.entered_balance_point_in: float | None = None  # the last one entered (kept)
-        self._balance_point_t: float | None = None
         self.device_info: dict[str, DeviceInfo] = {}
         self.calibrations: dict[str, CalibrationRecord] = {}
         for channel, cfg in config.channels.items():
@@ -158,9 +158,7 @@ class BenchPipeline:
                 self.calibrations[channel] = record
         self._channels: dict[str, _ChannelState] = {}
         self._groups = self._make_groups()
-        self._group_of: dict[str, _Group] = {
-            ch: g for g in self._groups for ch in g.channels
-        }
+        self._group_of: dict[str, _Group] = {ch: g for g in self._groups for ch in g.channels}
         for ch in self._group_of:
             self._channels[ch] = _ChannelState(ChannelRef.parse(ch))
         self._pending: dict[str, _GroupCapture] = {}
@@ -196,12 +194,6 @@ class BenchPipeline:
         elif isinstance(output, DeviceInfo):
             self.device_info[output.device] = output
         return self._take()
-
-    def feed_all(self, outputs: Iterable[DriverOutput]) -> list[PipelineOutput]:
-        events: list[PipelineOutput] = []
-        for o in outputs:
-            events.extend(self.feed(o))
-        return events
 
     def tick(self, t_mono_s: float) -> list[PipelineOutput]:
         """Advance time with no new reading (timeouts: will not settle, a silent channel)."""
@@ -261,24 +253,13 @@ class BenchPipeline:
         self._handle(group, group.engine.on_sample(channel, r.t_mono_s, net_g, flags))
 
     def _on_tag(self, tag: ClubTag) -> None:
-        """A scanned club id; on a single-scale station also a balance point.
-
-        Tags there read ``BP:29.25in`` (a balance point), ``LCW-0001`` (a club id) or both,
-        ``LCW-0001 BP:29.25in`` (a traveller card carrying the id and the knife-edge reading).
-        """
+        """A scanned club id; on a single-scale station also a balance point (split_tag)."""
         geometry = self.config.geometry
         text = tag.club_id.strip()
         if not isinstance(geometry, SingleScaleGeometry):
             self.club_id = text
             return
-        prefix = geometry.balance_point_prefix
-        club_id: str | None
-        bp: str | None
-        if text.startswith(prefix):
-            club_id, bp = None, text[len(prefix) :]
-        else:
-            head, found, tail = text.rpartition(" " + prefix)
-            club_id, bp = (head.strip(), tail) if found else (text, None)
+        club_id, bp = split_tag(text, geometry.balance_point_prefix)
         if club_id:
             self.club_id = club_id  # before the balance point, which may complete a weighing
         if bp is not None:
@@ -348,7 +329,7 @@ class BenchPipeline:
             numbers,
             windows,
             self.calibrations,
-            id=self._measurement_id(seq),
+            id=measurement_id(self._replay_source, seq),
             station=self.station,
             seq=seq,
             time_utc=self._clock_utc(),
@@ -373,11 +354,6 @@ class BenchPipeline:
                 AlarmCondition(AlarmKind.OUT_OF_SPEC, "station", False, f"club #{seq} in spec")
             )
 
-    def _measurement_id(self, seq: int) -> uuid.UUID:
-        if self._replay_source is not None:
-            return uuid.uuid5(REPLAY_NAMESPACE, f"{self._replay_source}#{seq}")
-        return uuid.uuid4()
-
     # ----------------------------------------------------------------------- selections
 
     @property
@@ -385,29 +361,17 @@ class BenchPipeline:
         return self.config.specs.get(self.spec_name) if self.spec_name is not None else None
 
     def select_job(self, job: str) -> None:
-        if job not in self.config.jobs:
-            raise SelectionError(f"no job {job!r}; jobs: {', '.join(sorted(self.config.jobs))}")
+        self.spec_name = spec_of_job(self.config, job)
         self.job = job
-        self.spec_name = self.config.jobs[job].spec
         self.club = None
 
     def select_spec(self, spec: str, club: str | None = None) -> None:
-        found = self.config.specs.get(spec)
-        if found is None:
-            raise SelectionError(
-                f"no spec {spec!r}; specs: {', '.join(sorted(self.config.specs)) or 'none'}"
-            )
-        if club is not None and found.clubs and club not in found.clubs:
-            raise SelectionError(
-                f"spec {spec!r} has no club {club!r}; clubs: {', '.join(sorted(found.clubs))}"
-            )
+        check_spec(self.config, spec, club)
         self.spec_name = spec
         self.club = club
 
     def set_club_id(self, club_id: str) -> None:
-        if not club_id.strip():
-            raise SelectionError("club_id must not be empty")
-        self.club_id = club_id.strip()
+        self.club_id = clean_club_id(club_id)
 
     def set_balance_point(
         self, value: str | float, t_mono_s: float | None = None
@@ -423,12 +387,7 @@ class BenchPipeline:
                 f"a balance point is entered only on a single_scale station (this one is "
                 f"{geometry.type})"
             )
-        try:
-            bp = parse_quantity(value, kind="length") if isinstance(value, str) else float(value)
-        except UnitError as err:
-            raise SelectionError(str(err)) from None
-        if not 0 < bp < 60:
-            raise SelectionError(f"balance point {bp:g} in is not between 0 and 60 in")
+        bp = balance_point_in(value)
         self.balance_point_in = self.entered_balance_point_in = bp
         t = self._last_t if t_mono_s is None else t_mono_s
         weighing = self._pending.get("weight")
