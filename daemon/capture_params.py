@@ -17,7 +17,9 @@ from __future__ import annotations
 
 from typing import Any, Literal, Self
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+from heft.drivers.reading import ChannelRef
 
 PresetName = Literal["hx711_10hz", "hx711_80hz", "precision_balance"]
 DeviceFlagMode = Literal["ignore", "veto", "require", "trust"]
@@ -187,6 +189,13 @@ class CaptureParams(BaseModel):
     per_channel: dict[str, ChannelOverrides] = Field(
         default_factory=dict, description="overrides keyed by channel name such as 'beam/0'"
     )
+
+    @field_validator("per_channel")
+    @classmethod
+    def _channel_names(cls, value: dict[str, ChannelOverrides]) -> dict[str, ChannelOverrides]:
+        for name in value:
+            ChannelRef.parse(name)  # raises naming the text and the expected form
+        return value
 
     @model_validator(mode="before")
     @classmethod

@@ -74,3 +74,11 @@ def test_a_bad_channel_table_name_names_the_table() -> None:
     )
     with pytest.raises(ConfigError, match=r"channels.*'beam/one' is not a channel reference"):
         load_config_text(text, "station.toml", Path())
+
+
+def test_a_bad_per_channel_capture_key_names_the_table() -> None:
+    text = station_toml(port="/dev/null", db=Path("x.db"), capture=(
+        'preset_name = "hx711_80hz"\n[capture.per_channel."beam-0"]\ndivision_g = 0.5'
+    ))
+    with pytest.raises(ConfigError, match=r"capture\.per_channel: 'beam-0' is not a channel ref"):
+        load_config_text(text, "station.toml", Path())
