@@ -15,11 +15,21 @@ least 0.4 s (OIML R 76-1 4.4.2), zero tracking at most 0.5 d/s and within 4 % of
 
 from __future__ import annotations
 
-from typing import Any, Literal, Self
+from typing import Any, Literal, Self, TypeVar
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from heft.drivers.reading import ChannelRef
+
+_V = TypeVar("_V")
+
+
+def keyed_by_channel(table: dict[str, _V]) -> dict[str, _V]:
+    """``table`` when every key is a channel reference text (ChannelRefError names the first
+    that is not): config tables keyed by channel keep their text keys, checked once here."""
+    for name in table:
+        ChannelRef.parse(name)
+    return table
 
 PresetName = Literal["hx711_10hz", "hx711_80hz", "precision_balance"]
 DeviceFlagMode = Literal["ignore", "veto", "require", "trust"]
@@ -193,9 +203,7 @@ class CaptureParams(BaseModel):
     @field_validator("per_channel")
     @classmethod
     def _channel_names(cls, value: dict[str, ChannelOverrides]) -> dict[str, ChannelOverrides]:
-        for name in value:
-            ChannelRef.parse(name)  # raises naming the text and the expected form
-        return value
+        return keyed_by_channel(value)
 
     @model_validator(mode="before")
     @classmethod

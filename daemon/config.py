@@ -38,7 +38,7 @@ from pydantic import (
     model_validator,
 )
 
-from heft.daemon.capture_params import CaptureParams
+from heft.daemon.capture_params import CaptureParams, keyed_by_channel
 from heft.daemon.config_sections import (
     CHANNEL_PATTERN,
     GEOMETRY_TYPES,
@@ -124,9 +124,7 @@ class StationConfig(ConfigSection):
     @field_validator("channels")
     @classmethod
     def _channel_names(cls, value: dict[str, ChannelConfig]) -> dict[str, ChannelConfig]:
-        for name in value:
-            ChannelRef.parse(name)  # raises naming the text and the expected form
-        return value
+        return keyed_by_channel(value)
 
     @model_validator(mode="after")
     def _references(self) -> StationConfig:
