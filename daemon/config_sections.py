@@ -23,11 +23,15 @@ from pydantic import (
 )
 
 from heft.daemon.physics.swingweight import points_from_label
-from heft.drivers.reading import ChannelRef, ChannelRefError
+from heft.drivers.reading import CHANNEL_PATTERN as CHANNEL_PATTERN
+from heft.drivers.reading import (
+    DEVICE_NAME_PATTERN,
+    ChannelRef,
+    ChannelRefError,
+)
 from heft.drivers.units import UnitError, parse_quantity
 
-NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
-CHANNEL_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*/[0-9]+$"
+NAME_PATTERN = DEVICE_NAME_PATTERN  # station and device names alike
 
 
 def _quantity(kind: str) -> BeforeValidator:

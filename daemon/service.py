@@ -187,6 +187,8 @@ class Service:
         """Wire the parts that live while the service runs around ``pipeline`` and ``store``."""
         self.pipeline = pipeline
         self._to_store = asyncio.Queue()
+        # A run starts with no alarm held in memory (the log's leftovers are closed in _run).
+        self.alarms = AlarmManager(self.config.station, self._clock_utc, self._alarm_changed)
         self.calibration = CalibrationWorkflow(
             self.config, pipeline, store, self._apply_alarm, self._clock_utc
         )

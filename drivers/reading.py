@@ -27,10 +27,11 @@ class Flag(enum.Flag):
     NEEDS_ZERO = enum.auto()
 
 
-DEVICE_NAME_PATTERN = r"[A-Za-z0-9][A-Za-z0-9_.-]*"
+DEVICE_NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
 # No leading zeros in the index: "beam/01" would not read back as the same text.
-_CHANNEL_TEXT = re.compile(rf"^({DEVICE_NAME_PATTERN})/(0|[1-9][0-9]*)$")
-_DEVICE_NAME = re.compile(rf"^{DEVICE_NAME_PATTERN}$")
+CHANNEL_PATTERN = rf"^({DEVICE_NAME_PATTERN[1:-1]})/(0|[1-9][0-9]*)$"
+_CHANNEL_TEXT = re.compile(CHANNEL_PATTERN)
+_DEVICE_NAME = re.compile(DEVICE_NAME_PATTERN)
 
 
 class ChannelRefError(ValueError):
