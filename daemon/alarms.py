@@ -2,17 +2,34 @@
 
 An alarm is identified by its key ``'<kind>:<source>'``. Raising an active alarm again with the
 same message changes nothing (no event storm while a device stays offline); a new message (a
-second club out of spec) is a new event and needs a new acknowledgement. Every change is handed
-to ``on_change``, which the service uses to publish on the bus and keep the history in SQLite.
+second club out of spec) is a new event and needs a new acknowledgement.
+
+The parts that find conditions (the pipeline, the calibration part) do not hold alarm state:
+they hand out :class:`AlarmCondition` values, and the service applies them to its one
+:class:`AlarmManager` (:meth:`AlarmManager.apply`), publishing and logging each change.
 """
 
 from __future__ import annotations
 
 from collections import deque
 from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import datetime
 
 from heft.daemon.events import Alarm, AlarmKind
+
+
+@dataclass(frozen=True, slots=True)
+class AlarmCondition:
+    """A condition found by a part: raise ``kind`` on ``source`` (``active``) or clear it.
+
+    ``message`` is the alarm's wording when raised and the history's note when cleared.
+    """
+
+    kind: AlarmKind
+    source: str
+    active: bool
+    message: str
 
 
 class UnknownAlarmError(KeyError):
@@ -71,6 +88,12 @@ class AlarmManager:
         if active:
             return self.raise_alarm(kind, source, message)
         return self.clear(kind, source)
+
+    def apply(self, condition: AlarmCondition) -> Alarm | None:
+        """Raise (or re-word) or clear as ``condition`` says; the change, None when none."""
+        if condition.active:
+            return self.raise_alarm(condition.kind, condition.source, condition.message)
+        return self.clear(condition.kind, condition.source, condition.message)
 
     def acknowledge(self, key: str) -> Alarm:
         """Mark an active alarm seen; it stays active until its cause clears."""

@@ -34,220 +34,38 @@ from __future__ import annotations
 
 import bisect
 import math
-from collections import deque
 from collections.abc import Sequence
-from dataclasses import dataclass
-from functools import lru_cache
-from statistics import NormalDist, median
 
+from heft.daemon.capture_channel import ChannelSamples, StableWindow, chi2_quantile_ratio
+from heft.daemon.capture_outputs import (
+    Captured,
+    CaptureOutput,
+    CaptureWarning,
+    StateChanged,
+    Warning,
+    WindowStats,
+    ZeroTracked,
+)
 from heft.daemon.capture_params import CaptureParams
 from heft.daemon.events import CaptureState
 from heft.drivers.reading import Flag
 
+__all__ = [
+    "CaptureEngine",
+    "CaptureOutput",
+    "CaptureWarning",
+    "Captured",
+    "StateChanged",
+    "Warning",
+    "WindowStats",
+    "ZeroTracked",
+    "chi2_quantile_ratio",
+]
+
 _UNUSABLE = Flag.OVERLOAD | Flag.UNDERLOAD | Flag.FAULT
 _MAX_CANDIDATES = 24  # window lengths tried per sample: bounds the cost at high sample rates
 _ZERO_TRACK_INTERVAL_S = 0.5  # zero-tracking corrections are applied at most this often
-_NOISE_ESTIMATES = 9  # the noise estimate is the median of this many recent empty windows
-_REBASE_EVERY = 20_000  # samples between re-centring the running sums (keeps them precise)
 _EPS_S = 1e-9
-
-
-# --- outputs -------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class WindowStats:
-    """The stable window of one channel that a capture was taken from (net grams)."""
-
-    mean_g: float
-    stdev_g: float
-    n: int
-    t_start_s: float
-    t_end_s: float
-
-
-@dataclass(frozen=True, slots=True)
-class StateChanged:
-    state: CaptureState
-    t_s: float
-    detail: str = ""
-
-
-@dataclass(frozen=True, slots=True)
-class Captured:
-    """One capture: the net mean of every channel's stable window."""
-
-    t_s: float
-    t_placed_s: float
-    windows: dict[str, WindowStats]
-
-    @property
-    def total_g(self) -> float:
-        return sum(w.mean_g for w in self.windows.values())
-
-
-@dataclass(frozen=True, slots=True)
-class Warning:  # the name in the engine's contract; CaptureWarning is an alias
-    """A condition the operator should see; ``active=False`` clears an earlier one."""
-
-    kind: str  # 'will_not_settle' | 'overload' | 'zero_out_of_range' | 'needs_zero'
-    t_s: float
-    message: str
-    channel: str = ""
-    active: bool = True
-
-
-CaptureWarning = Warning
-
-
-@dataclass(frozen=True, slots=True)
-class ZeroTracked:
-    """Zero tracking moved a channel's zero offset (subtracted from every reading)."""
-
-    channel: str
-    offset_g: float
-    t_s: float = 0.0
-
-
-CaptureOutput = StateChanged | Captured | Warning | ZeroTracked
-
-
-# --- statistics ----------------------------------------------------------------------------
-
-
-@lru_cache(maxsize=8192)
-def chi2_quantile_ratio(dof: int, confidence: float) -> float:
-    """Upper quantile of chi-square with ``dof`` degrees of freedom, divided by ``dof``.
-
-    Wilson-Hilferty cube-root normal approximation (Wilson & Hilferty 1931; within about 3 %
-    of the tabulated values for dof >= 1 at the confidences used here).
-    """
-    z = NormalDist().inv_cdf(confidence)
-    h = 2.0 / (9.0 * dof)
-    return float((1.0 - h + z * math.sqrt(h)) ** 3)
-
-
-@dataclass(frozen=True, slots=True)
-class _Fit:
-    n: int
-    mean: float  # raw grams
-    slope_g_per_s: float
-    resid_var: float  # about the fitted line, dof n - 2
-    var: float  # about the mean, dof n - 1
-
-
-@dataclass(frozen=True, slots=True)
-class _Window:
-    first: int
-    last: int
-    fit: _Fit
-    t_start_s: float
-    t_end_s: float
-    cover_start_s: float  # earliest time the window speaks for (t_start, unless a device vouches)
-
-
-# --- one channel ---------------------------------------------------------------------------
-
-
-class _Channel:
-    """Samples of one channel with running sums for O(1) line fits over any index range."""
-
-    def __init__(self, name: str, params: CaptureParams) -> None:
-        self.name = name
-        self.d_g = params.division_for(name)
-        self.limit_g = params.overload_limit_for(name)
-        self.noise_prior_g = params.noise_for(name)
-        self.flag_mode = params.device_flags_for(name)
-        self.keep_s = max(params.max_window_s, params.zero_tracking_window_s) + 1.0
-        self.t: list[float] = []
-        self.x: list[float] = []
-        self.flags: list[Flag] = []
-        # cum[k] = (sum t', sum t'^2, sum x', sum x'^2, sum t'x') over samples 0..k-1
-        self.cum: list[tuple[float, float, float, float, float]] = [(0.0, 0.0, 0.0, 0.0, 0.0)]
-        self.t_ref = 0.0
-        self.x_ref = 0.0
-        self.head = 0  # first sample still kept
-        self.since_rebase = 0
-        self.window_from = 0  # first sample a window may start at
-        self.stable_run_from = 0  # first of the current run of device-STABLE samples
-        self.last_t: float | None = None
-        self.latest_net_g = 0.0  # what the load check sees
-        self.overloaded = False
-        self.offset_g = 0.0
-        self.zero_last_s: float | None = None
-        self.noise_from = 0
-        self.noise_estimates: deque[float] = deque(maxlen=_NOISE_ESTIMATES)
-        self.result: _Window | None = None
-
-    # storage
-    def append(self, t_s: float, value_g: float, flags: Flag) -> None:
-        if not self.t:
-            self.t_ref, self.x_ref = t_s, value_g
-        self._push_sums(t_s, value_g)
-        self.t.append(t_s)
-        self.x.append(value_g)
-        self.flags.append(flags)
-        if not flags & Flag.STABLE:
-            self.stable_run_from = len(self.t)
-        self._trim(t_s)
-
-    def _trim(self, now_s: float) -> None:
-        h = bisect.bisect_left(self.t, now_s - self.keep_s, self.head)
-        self.head = h
-        self.since_rebase += 1
-        if self.since_rebase >= _REBASE_EVERY or (h > 1024 and h > len(self.t) // 2):
-            self._compact()
-
-    def _compact(self) -> None:
-        h = self.head
-        del self.t[:h], self.x[:h], self.flags[:h]
-        self.window_from = max(0, self.window_from - h)
-        self.stable_run_from = max(0, self.stable_run_from - h)
-        self.noise_from = max(0, self.noise_from - h)
-        self.head = 0
-        self.since_rebase = 0
-        self.result = None
-        self.t_ref = self.t[0] if self.t else 0.0
-        self.x_ref = self.x[0] if self.x else 0.0
-        self.cum = [(0.0, 0.0, 0.0, 0.0, 0.0)]
-        for t, x in zip(self.t, self.x, strict=True):
-            self._push_sums(t, x)
-
-    def _push_sums(self, t_s: float, value_g: float) -> None:
-        tp, xp = t_s - self.t_ref, value_g - self.x_ref
-        c = self.cum[-1]
-        self.cum.append((c[0] + tp, c[1] + tp * tp, c[2] + xp, c[3] + xp * xp, c[4] + tp * xp))
-
-    def restart_windows(self) -> None:
-        """No window may reach back before the next sample (gap, overload, state change)."""
-        self.window_from = len(self.t)
-        self.noise_from = len(self.t)
-        self.result = None
-
-    @property
-    def noise_g(self) -> float:
-        if len(self.noise_estimates) >= 3:
-            return median(self.noise_estimates)
-        return self.noise_prior_g
-
-    def fit(self, i: int, j: int) -> _Fit:
-        """Least-squares line through samples i..j (inclusive) from the running sums."""
-        a, b = self.cum[i], self.cum[j + 1]
-        n = j - i + 1
-        st, stt, sx, sxx, stx = (b[k] - a[k] for k in range(5))
-        mt, mx = st / n, sx / n
-        ctt = stt - st * mt
-        cxx = max(sxx - sx * mx, 0.0)
-        ctx = stx - st * mx
-        slope = ctx / ctt if ctt > 1e-15 else 0.0
-        ssr = max(cxx - slope * ctx, 0.0)
-        return _Fit(
-            n=n,
-            mean=self.x_ref + mx,
-            slope_g_per_s=slope,
-            resid_var=ssr / (n - 2) if n > 2 else 0.0,
-            var=cxx / (n - 1) if n > 1 else 0.0,
-        )
 
 
 # --- the engine ----------------------------------------------------------------------------
@@ -263,7 +81,7 @@ class CaptureEngine:
         if len(set(names)) != len(names):
             raise ValueError(f"channel names must be unique, got {names}")
         self.params = params
-        self._ch = {n: _Channel(n, params) for n in names}
+        self._ch = {n: ChannelSamples(n, params) for n in names}
         self._state = CaptureState.EMPTY
         self._t_placed: float | None = None
         self._t_first: float | None = None  # first time the engine heard of (sample or tick)
@@ -395,7 +213,7 @@ class CaptureEngine:
         return out
 
     # --- state machine ---
-    def _advance(self, ch: _Channel, t_s: float) -> list[CaptureOutput]:
+    def _advance(self, ch: ChannelSamples, t_s: float) -> list[CaptureOutput]:
         p = self.params
         st = self._state
         if st is CaptureState.OFFLINE:
@@ -496,7 +314,7 @@ class CaptureEngine:
         return self._start_settling(t_s, "channels back with a load")
 
     # --- stability ---
-    def _evaluate(self, ch: _Channel) -> _Window | None:
+    def _evaluate(self, ch: ChannelSamples) -> StableWindow | None:
         """Longest stable window of ``ch`` ending at its newest sample, or None."""
         if ch.overloaded or not ch.t:
             return None
@@ -512,7 +330,7 @@ class CaptureEngine:
             if i <= j:
                 f = ch.fit(i, j)
                 # the device vouches for its own stable window: it does not limit the overlap
-                return _Window(i, j, f, ch.t[i], ch.t[j], -math.inf)
+                return StableWindow(i, j, f, ch.t[i], ch.t[j], -math.inf)
         if mode in ("veto", "trust") and last_flags & Flag.MOTION:
             return None
         if mode == "require" and not last_flags & Flag.STABLE:
@@ -520,8 +338,8 @@ class CaptureEngine:
         return self._longest_stable(ch, first, j, p.min_stable_s, p.max_window_s)
 
     def _longest_stable(
-        self, ch: _Channel, first: int, j: int, min_cover_s: float, max_cover_s: float
-    ) -> _Window | None:
+        self, ch: ChannelSamples, first: int, j: int, min_cover_s: float, max_cover_s: float
+    ) -> StableWindow | None:
         t = ch.t
         # newest start whose window still spans min_cover_s (first to last sample: the
         # conservative reading of "for at least 0.4 s")
@@ -539,7 +357,7 @@ class CaptureEngine:
                 return w
         return None
 
-    def _test(self, ch: _Channel, i: int, j: int) -> _Window | None:
+    def _test(self, ch: ChannelSamples, i: int, j: int) -> StableWindow | None:
         p = self.params
         n = j - i + 1
         if n < 3:
@@ -557,11 +375,11 @@ class CaptureEngine:
             return None
         if max(noise * noise, f.resid_var) / n > (p.resolution_d * d) ** 2:
             return None
-        return _Window(i, j, f, ch.t[i], ch.t[j], ch.t[i])
+        return StableWindow(i, j, f, ch.t[i], ch.t[j], ch.t[i])
 
     def _try_capture(self, t_s: float) -> list[CaptureOutput]:
         p = self.params
-        results: dict[str, _Window] = {}
+        results: dict[str, StableWindow] = {}
         for c in self._ch.values():
             if c.result is None or c.last_t is None or t_s - c.last_t > p.max_gap_s:
                 return []
@@ -591,7 +409,7 @@ class CaptureEngine:
         return out
 
     # --- empty: noise learning and zero tracking ---
-    def _empty_housekeeping(self, ch: _Channel, t_s: float) -> list[CaptureOutput]:
+    def _empty_housekeeping(self, ch: ChannelSamples, t_s: float) -> list[CaptureOutput]:
         p = self.params
         j = len(ch.t) - 1
         if j < 0 or ch.last_t != ch.t[j]:
@@ -612,7 +430,7 @@ class CaptureEngine:
             return []
         return self._track_zero(ch, w, t_s)
 
-    def _learn_noise(self, ch: _Channel, j: int) -> None:
+    def _learn_noise(self, ch: ChannelSamples, j: int) -> None:
         """Scatter of non-overlapping empty windows about their fitted line."""
         i = max(ch.noise_from, ch.head)
         if j - i + 1 < 5 or ch.t[j] - ch.t[i] < self.params.zero_tracking_window_s:
@@ -623,7 +441,7 @@ class CaptureEngine:
             return  # something rests on it after all
         ch.noise_estimates.append(math.sqrt(f.resid_var))
 
-    def _track_zero(self, ch: _Channel, w: _Window, t_s: float) -> list[CaptureOutput]:
+    def _track_zero(self, ch: ChannelSamples, w: StableWindow, t_s: float) -> list[CaptureOutput]:
         p = self.params
         d = ch.d_g
         last = ch.zero_last_s if ch.zero_last_s is not None else t_s

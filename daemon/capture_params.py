@@ -15,9 +15,21 @@ least 0.4 s (OIML R 76-1 4.4.2), zero tracking at most 0.5 d/s and within 4 % of
 
 from __future__ import annotations
 
-from typing import Any, Literal, Self
+from typing import Any, Literal, Self, TypeVar
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+from heft.drivers.reading import ChannelRef
+
+_V = TypeVar("_V")
+
+
+def keyed_by_channel(table: dict[str, _V]) -> dict[str, _V]:
+    """``table`` when every key is a channel reference text (ChannelRefError names the first
+    that is not): config tables keyed by channel keep their text keys, checked once here."""
+    for name in table:
+        ChannelRef.parse(name)
+    return table
 
 PresetName = Literal["hx711_10hz", "hx711_80hz", "precision_balance"]
 DeviceFlagMode = Literal["ignore", "veto", "require", "trust"]
@@ -187,6 +199,11 @@ class CaptureParams(BaseModel):
     per_channel: dict[str, ChannelOverrides] = Field(
         default_factory=dict, description="overrides keyed by channel name such as 'beam/0'"
     )
+
+    @field_validator("per_channel")
+    @classmethod
+    def _channel_names(cls, value: dict[str, ChannelOverrides]) -> dict[str, ChannelOverrides]:
+        return keyed_by_channel(value)
 
     @model_validator(mode="before")
     @classmethod

@@ -16,6 +16,9 @@ Layout (every table is described in docs/service.md and shown by ``heft config e
 Lengths and masses accept unit suffixes (``"36in"``, ``"914mm"``, ``"390g"``, ``"13.7oz"``);
 bare numbers are inches and grams. A bad file gives one :class:`ConfigError` whose message names
 the field path (``geometry.position_b_in``) and the expected form, one line per problem.
+
+This module holds the whole file (:class:`StationConfig`, its cross-references), loading and
+the problem lines; the tables themselves are in :mod:`heft.daemon.config_sections`.
 """
 
 from __future__ import annotations
@@ -23,27 +26,76 @@ from __future__ import annotations
 import sys
 import tomllib
 from pathlib import Path
-from typing import Annotated, Any, Literal
+from typing import Any
 
 from pydantic import (
     BaseModel,
-    BeforeValidator,
-    ConfigDict,
     Field,
     ValidationError,
     field_validator,
     model_validator,
 )
 
-from heft.daemon.capture_params import CaptureParams
+from heft.daemon.capture_params import CaptureParams, keyed_by_channel
+from heft.daemon.config_sections import (
+    CHANNEL_PATTERN,
+    GEOMETRY_TYPES,
+    NAME_PATTERN,
+    ChannelConfig,
+    ChannelField,
+    ClubTarget,
+    ConfigSection,
+    DeviceConfig,
+    Geometry,
+    JobConfig,
+    Length,
+    LengthRange,
+    LeverBeamGeometry,
+    Mass,
+    MassRange,
+    SingleScaleGeometry,
+    SpecConfig,
+    StorageConfig,
+    SwingLabel,
+    TwoSupportGeometry,
+)
 from heft.daemon.mqtt_settings import MqttSettings
-from heft.daemon.physics.swingweight import points_from_label
-from heft.drivers.units import UnitError, parse_quantity
+from heft.drivers.reading import ChannelRef
 from heft.drivers.validation import FieldProblems as _FieldProblem
 from heft.drivers.validation import problem_lines as validation_problem_lines
 
-NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
-CHANNEL_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*/[0-9]+$"
+# The tables live in heft.daemon.config_sections; they are named here too, where every user
+# of the config has always imported them from.
+__all__ = [
+    "CHANNEL_PATTERN",
+    "DRIVER_CHANNELS",
+    "GEOMETRY_TYPES",
+    "NAME_PATTERN",
+    "ChannelConfig",
+    "ChannelField",
+    "ClubTarget",
+    "ConfigError",
+    "DeviceConfig",
+    "Geometry",
+    "JobConfig",
+    "Length",
+    "LengthRange",
+    "LeverBeamGeometry",
+    "Mass",
+    "MassRange",
+    "SingleScaleGeometry",
+    "SpecConfig",
+    "StationConfig",
+    "StorageConfig",
+    "SwingLabel",
+    "TwoSupportGeometry",
+    "check_drivers",
+    "format_validation_error",
+    "load_config",
+    "load_config_text",
+    "parse_config",
+    "problem_lines",
+]
 
 
 class ConfigError(ValueError):
@@ -53,237 +105,7 @@ class ConfigError(ValueError):
     """
 
 
-def _quantity(kind: str) -> BeforeValidator:
-    def parse(value: object) -> object:
-        if isinstance(value, str):
-            try:
-                return parse_quantity(value, kind=kind)
-            except UnitError as err:
-                raise ValueError(str(err)) from None
-        return value
-
-    return BeforeValidator(parse)
-
-
-def _channel_ref(value: object) -> object:
-    """``"scale"`` is shorthand for ``"scale/0"`` (a one-channel device)."""
-    if isinstance(value, str) and "/" not in value:
-        return f"{value}/0"
-    return value
-
-
-Length = Annotated[float, _quantity("length")]
-Mass = Annotated[float, _quantity("mass")]
-ChannelRef = Annotated[str, BeforeValidator(_channel_ref), Field(pattern=CHANNEL_PATTERN)]
-
-
-class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
-
-
-class DeviceConfig(_Section):
-    """One device: a scale, a load-cell beam or a scanner."""
-
-    name: str = Field(pattern=NAME_PATTERN, description="short name; channels are '<name>/<n>'")
-    driver: str = Field(min_length=1, description="driver name from the registry, e.g. 'beam'")
-    port: str | None = Field(default=None, description="serial port path, e.g. /dev/heft-beam")
-    url: str | None = Field(default=None, description="pyserial URL or usb: address")
-    baudrate: int | None = Field(default=None, gt=0)
-    options: dict[str, Any] = Field(default_factory=dict, description="driver options")
-    serial: dict[str, Any] = Field(
-        default_factory=dict, description="serial line settings: parity, stopbits, dtr, ..."
-    )
-    silence_timeout_s: float | None = Field(
-        default=None,
-        ge=0,
-        description="reconnect after this long without a byte; default 2 s (0 = never, "
-        "the default for scanners)",
-    )
-
-    @model_validator(mode="after")
-    def _one_address(self) -> DeviceConfig:
-        if (self.port is None) == (self.url is None):
-            raise ValueError("give exactly one of 'port' (a device path) or 'url'")
-        return self
-
-    @property
-    def address(self) -> str:
-        """Where the transport opens: the port path or the URL."""
-        return self.port if self.port is not None else str(self.url)
-
-    @property
-    def transport_options(self) -> dict[str, Any]:
-        opts = dict(self.serial)
-        if self.baudrate is not None:
-            opts["baudrate"] = self.baudrate
-        return opts
-
-    @property
-    def silence_limit_s(self) -> float | None:
-        """Seconds of silence that count as a lost device, or None (scanners talk rarely)."""
-        if self.silence_timeout_s is None:
-            return None if self.driver == "scanner" else 2.0
-        return self.silence_timeout_s or None
-
-
-class TwoSupportGeometry(_Section):
-    """Two supports (two scales, or two cells under one beam) at positions from the butt stop."""
-
-    type: Literal["two_support"]
-    channel_a: ChannelRef = Field(description="support nearer the butt")
-    position_a_in: Length = Field(ge=0, description="from the butt stop")
-    channel_b: ChannelRef = Field(description="support nearer the head")
-    position_b_in: Length = Field(ge=0, description="from the butt stop")
-    position_u_in: Length = Field(
-        default=0.02, ge=0, description="standard uncertainty of each support position"
-    )
-
-    @model_validator(mode="after")
-    def _distinct(self) -> TwoSupportGeometry:
-        if self.channel_a == self.channel_b:
-            raise ValueError("channel_a and channel_b must be different channels")
-        if abs(self.position_b_in - self.position_a_in) < 1.0:
-            raise ValueError("position_a_in and position_b_in must be at least 1 in apart")
-        return self
-
-    @property
-    def channels(self) -> tuple[str, ...]:
-        return (self.channel_a, self.channel_b)
-
-
-class LeverBeamGeometry(_Section):
-    """A beam pivoting at the fulcrum; a force read at a lever arm, plus a gram scale for W."""
-
-    type: Literal["lever_beam"]
-    force_channel: ChannelRef = Field(description="load cell or scale under the lever arm")
-    lever_arm_in: Length = Field(gt=0, description="from the pivot to the force reading")
-    lever_arm_u_in: Length = Field(default=0.01, ge=0, description="standard uncertainty")
-    weight_channel: ChannelRef = Field(description="gram scale weighing the whole club")
-    fulcrum_in: Length = Field(default=14.0, gt=0, description="pivot distance from the butt")
-    pairing_window_s: float = Field(
-        default=300.0, gt=0, description="a weighing and a beam reading further apart don't pair"
-    )
-
-    @model_validator(mode="after")
-    def _distinct(self) -> LeverBeamGeometry:
-        if self.force_channel == self.weight_channel:
-            raise ValueError("force_channel and weight_channel must be different channels")
-        return self
-
-    @property
-    def channels(self) -> tuple[str, ...]:
-        return (self.force_channel, self.weight_channel)
-
-
-class SingleScaleGeometry(_Section):
-    """One gram scale; the balance point is entered per club (command or scanner tag)."""
-
-    type: Literal["single_scale"]
-    weight_channel: ChannelRef
-    balance_point_u_in: Length = Field(
-        default=0.07, ge=0, description="standard uncertainty of an entered balance point"
-    )
-    balance_point_prefix: str = Field(
-        default="BP:", min_length=1, description="scanner tags starting with this set the BP"
-    )
-    pairing_window_s: float = Field(default=300.0, gt=0)
-
-    @property
-    def channels(self) -> tuple[str, ...]:
-        return (self.weight_channel,)
-
-
-Geometry = Annotated[
-    TwoSupportGeometry | LeverBeamGeometry | SingleScaleGeometry, Field(discriminator="type")
-]
-GEOMETRY_TYPES: tuple[str, ...] = ("two_support", "lever_beam", "single_scale")
-
-
-class ChannelConfig(_Section):
-    """Calibration of one load-cell channel (its display step is ``[capture]``'s division_g).
-
-    Load-cell channels (raw counts) need ``counts_per_g``/``zero_counts`` either here
-    (``source = "config"``) or from the database's latest calibration (``source = "database"``).
-    """
-
-    source: Literal["config", "database"] = "database"
-    zero_counts: float | None = None
-    counts_per_g: float | None = None
-    calibration_interval_days: int = Field(default=90, ge=1)
-    calibration_warn_days: int = Field(default=7, ge=0)
-
-    @model_validator(mode="after")
-    def _config_values(self) -> ChannelConfig:
-        if self.source == "config" and (self.zero_counts is None or self.counts_per_g is None):
-            raise ValueError("source = 'config' needs both zero_counts and counts_per_g")
-        if self.counts_per_g == 0:
-            raise ValueError("counts_per_g must not be 0")
-        return self
-
-
-def _label(value: object) -> object:
-    if isinstance(value, str):
-        points_from_label(value)  # raises ValueError naming the form
-    return value
-
-
-SwingLabel = Annotated[str, BeforeValidator(_label)]
-
-
-class MassRange(_Section):
-    min_g: Mass
-    max_g: Mass
-
-    @model_validator(mode="after")
-    def _ordered(self) -> MassRange:
-        if self.max_g <= self.min_g:
-            raise ValueError("max_g must be greater than min_g")
-        return self
-
-
-class LengthRange(_Section):
-    min_in: Length
-    max_in: Length
-
-    @model_validator(mode="after")
-    def _ordered(self) -> LengthRange:
-        if self.max_in <= self.min_in:
-            raise ValueError("max_in must be greater than min_in")
-        return self
-
-
-class ClubTarget(_Section):
-    """Per-club overrides inside a spec (e.g. a wedge two points heavier than the 7-iron)."""
-
-    swingweight: SwingLabel | None = None
-    tolerance_points: float | None = Field(default=None, gt=0)
-    total_weight: MassRange | None = None
-    balance_point: LengthRange | None = None
-
-
-class SpecConfig(_Section):
-    """What a club must measure to pass."""
-
-    swingweight: SwingLabel | None = Field(default=None, description="target label, e.g. 'D2'")
-    tolerance_points: float = Field(default=0.5, gt=0)
-    total_weight: MassRange | None = None
-    balance_point: LengthRange | None = None
-    near_limit_fraction: float = Field(
-        default=0.2, ge=0, lt=1, description="inner share of each half-band that warns"
-    )
-    clubs: dict[str, ClubTarget] = Field(default_factory=dict)
-
-
-class JobConfig(_Section):
-    spec: str
-    description: str = ""
-
-
-class StorageConfig(_Section):
-    path: Path = Field(description="SQLite file; relative paths are from the config file")
-
-
-class StationConfig(_Section):
+class StationConfig(ConfigSection):
     """A whole station."""
 
     station: str = Field(pattern=NAME_PATTERN)
@@ -302,12 +124,7 @@ class StationConfig(_Section):
     @field_validator("channels")
     @classmethod
     def _channel_names(cls, value: dict[str, ChannelConfig]) -> dict[str, ChannelConfig]:
-        import re
-
-        for name in value:
-            if not re.match(CHANNEL_PATTERN, name):
-                raise ValueError(f"channel name {name!r} is not of the form '<device>/<index>'")
-        return value
+        return keyed_by_channel(value)
 
     @model_validator(mode="after")
     def _references(self) -> StationConfig:
@@ -318,16 +135,17 @@ class StationConfig(_Section):
                 problems.append(("devices", f"device name {d.name!r} is used twice"))
             drivers[d.name] = d.driver
         read = dict(_geometry_channel_fields(self.geometry))
-        for field, channel in read.items():
-            why = _channel_problem(channel, drivers)
+        for field, ref in read.items():
+            why = _channel_problem(ref, drivers)
             if why is not None:
                 problems.append((f"geometry.{field}", why))
         for channel in self.channels:
-            why = _channel_problem(channel, drivers)
-            if why is None and channel not in read.values():
+            ref = ChannelRef.parse(channel)  # the key was checked by _channel_names
+            why = _channel_problem(ref, drivers)
+            if why is None and ref not in read.values():
                 why = (
                     f"the geometry reads no channel {channel!r} (it reads "
-                    f"{', '.join(sorted(set(read.values())))})"
+                    f"{', '.join(sorted({str(r) for r in read.values()}))})"
                 )
             if why is not None:
                 problems.append((f"channels.{channel}", why))
@@ -380,23 +198,23 @@ DRIVER_CHANNELS: dict[str, int] = {
 }
 
 
-def _channel_problem(channel: str, drivers: dict[str, str]) -> str | None:
-    """Why ``channel`` ('<device>/<n>') is not a weight channel of a configured device."""
-    device, _, index = channel.partition("/")
+def _channel_problem(ref: ChannelRef, drivers: dict[str, str]) -> str | None:
+    """Why ``ref`` is not a weight channel of a configured device."""
+    channel, device = str(ref), ref.device
     driver = drivers.get(device)
     if driver is None:
         return f"{channel!r} names no device; devices: {sorted(drivers)}"
     count = DRIVER_CHANNELS.get(driver)
     if count == 0:
         return f"{channel!r} is a {driver}, which reads club ids, not weights"
-    if count is not None and int(index) >= count:
+    if count is not None and ref.index >= count:
         return f"{channel!r}: a {driver} device reads only {device}/0"
     return None
 
 
-def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, str]]:
+def _geometry_channel_fields(geometry: BaseModel) -> list[tuple[str, ChannelRef]]:
     return [
-        (name, str(getattr(geometry, name)))
+        (name, getattr(geometry, name))
         for name in type(geometry).model_fields
         if name.endswith("channel") or name.startswith("channel_")
     ]

@@ -6,9 +6,11 @@ One object does, for live runs and for ``heft replay`` alike::
         -> Captured windows -> geometry -> ClubNumbers (with uncertainties) -> spec verdict
         -> Measurement -> MeasurementCaptured event
 
-Every method returns the events it produced (live readings, capture-state changes, alarm
-changes, captured measurements) in order; the caller decides what to do with them (the service
-stores measurements before publishing anything, replay prints them). Time comes in two forms,
+Every step returns its outputs in order: live readings, capture-state changes, captured
+measurements and alarm conditions (:class:`~heft.daemon.alarms.AlarmCondition`: raise or clear;
+the pipeline keeps no alarm state). The caller routes them: the service stores measurements
+before publishing anything and applies alarm conditions to the station's alarms; replay prints
+the measurements. Time comes in two forms,
 both passed in: each reading's monotonic ``t_mono_s`` (the recording's clock in replay) and
 ``clock_utc`` for wall-clock stamps.
 
@@ -26,16 +28,17 @@ from __future__ import annotations
 
 import logging
 import math
-import uuid
 from collections import deque
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 
-from heft.daemon.alarms import AlarmManager
+from heft.daemon.alarms import AlarmCondition
 from heft.daemon.calibration import config_record, counts_to_g, usable
 from heft.daemon.capture import Captured, CaptureEngine, StateChanged, WindowStats
 from heft.daemon.capture import Warning as CaptureWarning
+from heft.daemon.club_measure import REPLAY_NAMESPACE as REPLAY_NAMESPACE
+from heft.daemon.club_measure import club_numbers, measurement_id, measurement_of
 from heft.daemon.config import (
     LeverBeamGeometry,
     SingleScaleGeometry,
@@ -44,40 +47,44 @@ from heft.daemon.config import (
     TwoSupportGeometry,
 )
 from heft.daemon.events import (
-    AlarmChanged,
     AlarmKind,
     CaptureState,
     CaptureStateChanged,
-    Event,
     LiveReading,
     MeasurementCaptured,
 )
-from heft.daemon.measurement import ChannelWindow, Measurement, Verdict
-from heft.daemon.physics.club import (
-    ClubNumbers,
-    club_from_lever,
-    club_from_two_supports,
-    club_from_weight_and_balance,
-)
+from heft.daemon.measurement import Verdict
 from heft.daemon.physics.statics import StaticsError
-from heft.daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
 from heft.daemon.records import CalibrationRecord
+from heft.daemon.selection import SelectionError as SelectionError
+from heft.daemon.selection import (
+    balance_point_in,
+    check_spec,
+    clean_club_id,
+    spec_of_job,
+    split_tag,
+)
 from heft.daemon.specs import judge
 from heft.daemon.stillness import motion
 from heft.daemon.version import __version__
-from heft.drivers.reading import ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
-from heft.drivers.units import UnitError, parse_quantity
+from heft.drivers.reading import ChannelRef, ClubTag, DeviceInfo, DriverOutput, Reading, ValueKind
 
 log = logging.getLogger("heft.pipeline")
 
 # Raw values kept per channel for tare and calibration windows (80 samples/s for ~25 s).
 RECENT_SAMPLES = 2048
-# Namespace of the deterministic measurement ids that replay gives (uuid5 of recording + seq).
-REPLAY_NAMESPACE = uuid.UUID("6f1d3c52-4a8e-5b7e-9a51-2c3e7d1b0a94")
 
 
-class SelectionError(ValueError):
-    """A job, spec, club or balance point that cannot be selected; the message says why."""
+# What a pipeline step hands out, in order (events for the bus, and alarm conditions).
+PipelineOutput = LiveReading | CaptureStateChanged | MeasurementCaptured | AlarmCondition
+
+
+@dataclass(frozen=True, slots=True)
+class Tared:
+    """What a tare did: the channels tared and the outputs it caused (capture restarts)."""
+
+    channels: list[str]
+    outputs: list[PipelineOutput]
 
 
 @dataclass(frozen=True, slots=True)
@@ -97,6 +104,7 @@ class _Group:
 
 @dataclass
 class _ChannelState:
+    ref: ChannelRef
     recent: deque[tuple[float, float]] = field(default_factory=lambda: deque(maxlen=RECENT_SAMPLES))
     tare_g: float = 0.0
     counts: bool = False  # the device reports raw counts (a load cell), not grams
@@ -128,8 +136,7 @@ class BenchPipeline:
         self.config = config
         self.station = config.station
         self._clock_utc = clock_utc
-        self._out: list[Event] = []
-        self.alarms = AlarmManager(config.station, clock_utc, self._on_alarm)
+        self._out: list[PipelineOutput] = []
         self.next_seq = first_seq
         self._replay_source = replay_source
         self._software_version = software_version
@@ -139,7 +146,6 @@ class BenchPipeline:
         self.club_id: str | None = None
         self.balance_point_in: float | None = None  # waiting for its weighing
         self.entered_balance_point_in: float | None = None  # the last one entered (kept)
-        self._balance_point_t: float | None = None
         self.device_info: dict[str, DeviceInfo] = {}
         self.calibrations: dict[str, CalibrationRecord] = {}
         for channel, cfg in config.channels.items():
@@ -152,11 +158,9 @@ class BenchPipeline:
                 self.calibrations[channel] = record
         self._channels: dict[str, _ChannelState] = {}
         self._groups = self._make_groups()
-        self._group_of: dict[str, _Group] = {
-            ch: g for g in self._groups for ch in g.channels
-        }
+        self._group_of: dict[str, _Group] = {ch: g for g in self._groups for ch in g.channels}
         for ch in self._group_of:
-            self._channels[ch] = _ChannelState()
+            self._channels[ch] = _ChannelState(ChannelRef.parse(ch))
         self._pending: dict[str, _GroupCapture] = {}
         self._last_t = 0.0
 
@@ -168,9 +172,10 @@ class BenchPipeline:
         if isinstance(geometry, TwoSupportGeometry):
             specs = [("club", geometry.channels)]
         elif isinstance(geometry, LeverBeamGeometry):
-            specs = [("beam", (geometry.force_channel,)), ("weight", (geometry.weight_channel,))]
+            force, weight = geometry.channels
+            specs = [("beam", (force,)), ("weight", (weight,))]
         else:
-            specs = [("weight", (geometry.weight_channel,))]
+            specs = [("weight", geometry.channels)]
         return [_Group(name, chans, CaptureEngine(list(chans), params)) for name, chans in specs]
 
     @property
@@ -180,7 +185,7 @@ class BenchPipeline:
 
     # ----------------------------------------------------------------------- input
 
-    def feed(self, output: DriverOutput) -> list[Event]:
+    def feed(self, output: DriverOutput) -> list[PipelineOutput]:
         """Process one driver output; returns the events it caused, in order."""
         if isinstance(output, Reading):
             self._on_reading(output)
@@ -190,20 +195,14 @@ class BenchPipeline:
             self.device_info[output.device] = output
         return self._take()
 
-    def feed_all(self, outputs: Iterable[DriverOutput]) -> list[Event]:
-        events: list[Event] = []
-        for o in outputs:
-            events.extend(self.feed(o))
-        return events
-
-    def tick(self, t_mono_s: float) -> list[Event]:
+    def tick(self, t_mono_s: float) -> list[PipelineOutput]:
         """Advance time with no new reading (timeouts: will not settle, a silent channel)."""
         self._last_t = max(self._last_t, t_mono_s)
         for group in self._groups:
             self._handle(group, group.engine.tick(t_mono_s))
         return self._take()
 
-    def device_lost(self, device: str) -> list[Event]:
+    def device_lost(self, device: str) -> list[PipelineOutput]:
         """A device's port is gone: a capture settling on its channels starts over.
 
         The engine also restarts a channel's windows after any gap longer than
@@ -212,12 +211,11 @@ class BenchPipeline:
         captured (it is not measured twice when the device comes back).
         """
         for group in self._groups:
-            if any(ch.split("/")[0] == device for ch in group.channels) and (
-                group.engine.state in (CaptureState.SETTLING, CaptureState.UNSETTLED)
-            ):
+            on_device = any(self._channels[ch].ref.device == device for ch in group.channels)
+            if on_device and group.engine.state in (CaptureState.SETTLING, CaptureState.UNSETTLED):
                 self._handle(group, group.engine.rearm())
-        for ch, state in self._channels.items():
-            if ch.split("/")[0] == device:
+        for state in self._channels.values():
+            if state.ref.device == device:
                 state.recent.clear()
         return self._take()
 
@@ -232,7 +230,7 @@ class BenchPipeline:
         )
 
     def _on_reading(self, r: Reading) -> None:
-        channel = f"{r.device}/{r.channel}"
+        channel = str(r.ref)
         state = self._channels.get(channel)
         if state is None:
             return  # a channel the geometry does not use
@@ -256,24 +254,13 @@ class BenchPipeline:
         self._handle(group, group.engine.on_sample(channel, r.t_mono_s, net_g, flags))
 
     def _on_tag(self, tag: ClubTag) -> None:
-        """A scanned club id; on a single-scale station also a balance point.
-
-        Tags there read ``BP:29.25in`` (a balance point), ``LCW-0001`` (a club id) or both,
-        ``LCW-0001 BP:29.25in`` (a traveller card carrying the id and the knife-edge reading).
-        """
+        """A scanned club id; on a single-scale station also a balance point (split_tag)."""
         geometry = self.config.geometry
         text = tag.club_id.strip()
         if not isinstance(geometry, SingleScaleGeometry):
             self.club_id = text
             return
-        prefix = geometry.balance_point_prefix
-        club_id: str | None
-        bp: str | None
-        if text.startswith(prefix):
-            club_id, bp = None, text[len(prefix) :]
-        else:
-            head, found, tail = text.rpartition(" " + prefix)
-            club_id, bp = (head.strip(), tail) if found else (text, None)
+        club_id, bp = split_tag(text, geometry.balance_point_prefix)
         if club_id:
             self.club_id = club_id  # before the balance point, which may complete a weighing
         if bp is not None:
@@ -294,7 +281,8 @@ class BenchPipeline:
                 kind = _WARNING_ALARMS.get(ev.kind)
                 if kind is not None:
                     source = ev.channel or group.name
-                    self.alarms.set(kind, source, ev.active, ev.message)
+                    message = ev.message if ev.active else "cleared"
+                    self._out.append(AlarmCondition(kind, source, ev.active, message))
             elif isinstance(ev, Captured):
                 self._on_captured(group, ev)
 
@@ -318,38 +306,12 @@ class BenchPipeline:
 
     # ----------------------------------------------------------------------- measurement
 
-    def _reading_u(self, channel: str, w: WindowStats) -> UncertainValue:
-        """Window mean with its standard uncertainty: repeatability and the net resolution."""
-        step = self.config.capture.division_for(channel)
-        repeat = w.stdev_g / math.sqrt(w.n) if w.n > 1 else 0.0
-        return UncertainValue(w.mean_g, combine_u(repeat, net_resolution_u(step)))
-
-    def _numbers(self, windows: Mapping[str, WindowStats]) -> ClubNumbers:
-        geometry = self.config.geometry
-        if isinstance(geometry, TwoSupportGeometry):
-            return club_from_two_supports(
-                self._reading_u(geometry.channel_a, windows[geometry.channel_a]),
-                UncertainValue(geometry.position_a_in, geometry.position_u_in),
-                self._reading_u(geometry.channel_b, windows[geometry.channel_b]),
-                UncertainValue(geometry.position_b_in, geometry.position_u_in),
-            )
-        if isinstance(geometry, LeverBeamGeometry):
-            return club_from_lever(
-                self._reading_u(geometry.force_channel, windows[geometry.force_channel]),
-                UncertainValue(geometry.lever_arm_in, geometry.lever_arm_u_in),
-                self._reading_u(geometry.weight_channel, windows[geometry.weight_channel]),
-                fulcrum_in=geometry.fulcrum_in,
-            )
-        assert self.balance_point_in is not None
-        return club_from_weight_and_balance(
-            self._reading_u(geometry.weight_channel, windows[geometry.weight_channel]),
-            UncertainValue(self.balance_point_in, geometry.balance_point_u_in),
-        )
-
     def _measure(self, captures: list[_GroupCapture], t_s: float) -> None:
         windows = {ch: w for c in captures for ch, w in c.windows.items()}
         try:
-            numbers = self._numbers(windows)
+            numbers = club_numbers(
+                self.config.geometry, self.config.capture, windows, self.balance_point_in
+            )
         except StaticsError as err:
             self._out.append(
                 CaptureStateChanged(station=self.station, state=CaptureState.HOLDING, t_mono_s=t_s,
@@ -366,33 +328,20 @@ class BenchPipeline:
         )
         seq = self.next_seq
         self.next_seq += 1
-        channel_windows = [
-            ChannelWindow(
-                channel=ch,
-                mean_g=w.mean_g,
-                stdev_g=w.stdev_g,
-                n=w.n,
-                t_start_s=w.t_start_s,
-                t_end_s=w.t_end_s,
-                calibration_id=self._calibration_id(ch),
-            )
-            for ch, w in sorted(windows.items())
-        ]
-        m = Measurement(
-            id=self._measurement_id(seq),
+        m = measurement_of(
+            numbers,
+            windows,
+            self.calibrations,
+            id=measurement_id(self._replay_source, seq),
             station=self.station,
             seq=seq,
             time_utc=self._clock_utc(),
-            t=t_s,
+            t_s=t_s,
             club_id=self.club_id,
             job=self.job,
             spec=self.spec_name,
             club=self.club,
-            **numbers.as_dict(),
-            channels=channel_windows,
-            calibration_ids=sorted({w.calibration_id for w in channel_windows if w.calibration_id}),
-            verdict=verdict.verdict,
-            checks=verdict.checks,
+            verdict=verdict,
             software_version=self._software_version,
         )
         self.club_id = None
@@ -400,20 +349,13 @@ class BenchPipeline:
         self._out.append(MeasurementCaptured(measurement=m))
         if verdict.verdict is Verdict.FAIL:
             failed = "; ".join(c.message for c in verdict.failed)
-            self.alarms.raise_alarm(
-                AlarmKind.OUT_OF_SPEC, "station", f"club {m.club_id or f'#{seq}'}: {failed}"
-            )
+            self._out.append(AlarmCondition(
+                AlarmKind.OUT_OF_SPEC, "station", True, f"club {m.club_id or f'#{seq}'}: {failed}"
+            ))
         elif verdict.verdict is not Verdict.NO_SPEC:
-            self.alarms.clear(AlarmKind.OUT_OF_SPEC, "station", f"club #{seq} in spec")
-
-    def _calibration_id(self, channel: str) -> str | None:
-        record = self.calibrations.get(channel)
-        return record.id if record is not None else None
-
-    def _measurement_id(self, seq: int) -> uuid.UUID:
-        if self._replay_source is not None:
-            return uuid.uuid5(REPLAY_NAMESPACE, f"{self._replay_source}#{seq}")
-        return uuid.uuid4()
+            self._out.append(
+                AlarmCondition(AlarmKind.OUT_OF_SPEC, "station", False, f"club #{seq} in spec")
+            )
 
     # ----------------------------------------------------------------------- selections
 
@@ -422,31 +364,21 @@ class BenchPipeline:
         return self.config.specs.get(self.spec_name) if self.spec_name is not None else None
 
     def select_job(self, job: str) -> None:
-        if job not in self.config.jobs:
-            raise SelectionError(f"no job {job!r}; jobs: {', '.join(sorted(self.config.jobs))}")
+        self.spec_name = spec_of_job(self.config, job)
         self.job = job
-        self.spec_name = self.config.jobs[job].spec
         self.club = None
 
     def select_spec(self, spec: str, club: str | None = None) -> None:
-        found = self.config.specs.get(spec)
-        if found is None:
-            raise SelectionError(
-                f"no spec {spec!r}; specs: {', '.join(sorted(self.config.specs)) or 'none'}"
-            )
-        if club is not None and found.clubs and club not in found.clubs:
-            raise SelectionError(
-                f"spec {spec!r} has no club {club!r}; clubs: {', '.join(sorted(found.clubs))}"
-            )
+        check_spec(self.config, spec, club)
         self.spec_name = spec
         self.club = club
 
     def set_club_id(self, club_id: str) -> None:
-        if not club_id.strip():
-            raise SelectionError("club_id must not be empty")
-        self.club_id = club_id.strip()
+        self.club_id = clean_club_id(club_id)
 
-    def set_balance_point(self, value: str | float, t_mono_s: float | None = None) -> list[Event]:
+    def set_balance_point(
+        self, value: str | float, t_mono_s: float | None = None
+    ) -> list[PipelineOutput]:
         """Balance point of the club being weighed (single-scale geometry); may complete it."""
         self._set_balance_point(value, t_mono_s)
         return self._take()
@@ -458,26 +390,21 @@ class BenchPipeline:
                 f"a balance point is entered only on a single_scale station (this one is "
                 f"{geometry.type})"
             )
-        try:
-            bp = parse_quantity(value, kind="length") if isinstance(value, str) else float(value)
-        except UnitError as err:
-            raise SelectionError(str(err)) from None
-        if not 0 < bp < 60:
-            raise SelectionError(f"balance point {bp:g} in is not between 0 and 60 in")
+        bp = balance_point_in(value)
         self.balance_point_in = self.entered_balance_point_in = bp
         t = self._last_t if t_mono_s is None else t_mono_s
         weighing = self._pending.get("weight")
         if weighing is not None and t - weighing.t_s <= geometry.pairing_window_s:
             self._measure([self._pending.pop("weight")], t)
 
-    def tare(self, device: str | None, window_s: float = 0.5) -> list[str]:
+    def tare(self, device: str | None, window_s: float = 0.5) -> Tared:
         """Take the mean of the last ``window_s`` of each channel (of ``device``) as its tare.
 
-        Returns the channels tared; raises SelectionError when one has no recent readings or
-        was moving during the window (a tare taken mid-motion offsets every later weight), and
-        then tares none.
+        Returns the channels tared and the outputs; raises SelectionError when one has no recent
+        readings or was moving during the window (a tare taken mid-motion offsets every later
+        weight), and then tares none.
         """
-        chans = [c for c in self._channels if device is None or c.split("/")[0] == device]
+        chans = [c for c, st in self._channels.items() if device in (None, st.ref.device)]
         if not chans:
             raise SelectionError(f"no channel of device {device!r} is used by the geometry")
         tares: dict[str, float] = {}
@@ -494,9 +421,9 @@ class BenchPipeline:
         for ch, value in tares.items():
             self._channels[ch].tare_g = value
             self._handle(self._group_of[ch], self._group_of[ch].engine.reset_zero(ch))
-        return sorted(tares)
+        return Tared(sorted(tares), self._take())
 
-    def rearm(self) -> list[Event]:
+    def rearm(self) -> list[PipelineOutput]:
         for group in self._groups:
             self._handle(group, group.engine.rearm())
         self._pending.clear()
@@ -555,19 +482,9 @@ class BenchPipeline:
     def last_t(self) -> float:
         return self._last_t
 
-    def drain(self) -> list[Event]:
-        """Events made by direct calls (alarms raised by the service, selections)."""
-        return self._take()
-
     # ----------------------------------------------------------------------- plumbing
 
-    def _on_alarm(self, alarm: object) -> None:
-        from heft.daemon.events import Alarm
-
-        assert isinstance(alarm, Alarm)
-        self._out.append(AlarmChanged(alarm=alarm))
-
-    def _take(self) -> list[Event]:
+    def _take(self) -> list[PipelineOutput]:
         out, self._out = self._out, []
         return out
 

@@ -17,9 +17,9 @@ from datetime import datetime, timedelta
 from pathlib import Path
 
 from heft.daemon.config import StationConfig
-from heft.daemon.events import Event, MeasurementCaptured
+from heft.daemon.events import MeasurementCaptured
 from heft.daemon.measurement import Measurement
-from heft.daemon.pipeline import BenchPipeline
+from heft.daemon.pipeline import BenchPipeline, PipelineOutput
 from heft.daemon.records import CalibrationRecord
 from heft.drivers.base import Driver
 from heft.drivers.recording import Recording, read_recording
@@ -118,7 +118,7 @@ def replay(
         replay_source="|".join(p.name for p in paths),
     )
 
-    def measurements(events: list[Event]) -> Iterator[Measurement]:
+    def measurements(events: list[PipelineOutput]) -> Iterator[Measurement]:
         for ev in events:
             if isinstance(ev, MeasurementCaptured):
                 yield ev.measurement

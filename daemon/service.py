@@ -13,8 +13,13 @@ and closes every port):
 * the ticker: capture timeouts, device status, calibration due dates, the systemd watchdog;
 * the MQTT link (``daemon.mqtt_link``) when ``[mqtt] enabled``.
 
-Every event the pipeline makes goes to the :class:`~daemon.events.EventBus` (the dashboard, the
-MQTT link and tests subscribe); alarm changes also go to the alarm log in SQLite.
+The service routes what the pipeline hands out (``BenchPipeline`` steps return their outputs):
+measurements to the store, then the bus; alarm conditions to the station's one
+:class:`~heft.daemon.alarms.AlarmManager`, whose changes go to the alarm log in SQLite and the
+bus; everything else to the :class:`~heft.daemon.events.EventBus` (the dashboard, the MQTT link
+and tests subscribe). Commands are carried out by :mod:`heft.daemon.station_commands`, and
+calibration steps by the calibration part (:mod:`heft.daemon.calibration_workflow`); each sees
+the pipeline through a small named Protocol.
 """
 
 from __future__ import annotations
@@ -23,7 +28,7 @@ import asyncio
 import contextlib
 import logging
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -32,18 +37,10 @@ from typing import Any
 from tenacity import AsyncRetrying, retry_if_exception_type, wait_exponential
 
 from heft.daemon import command_api as api
-from heft.daemon.alarms import UnknownAlarmError
-from heft.daemon.calibration import (
-    CalibrationError,
-    CountsWindow,
-    active_record,
-    counts_to_g,
-    default_verify_tolerance_g,
-    due_status,
-    span_record,
-    usable,
-    verify_record,
-    zero_record,
+from heft.daemon.alarms import AlarmCondition, AlarmManager
+from heft.daemon.calibration_workflow import (
+    CalibrationWorkflow,
+    stored_calibrations,
 )
 from heft.daemon.config import DeviceConfig, StationConfig
 from heft.daemon.events import (
@@ -51,18 +48,17 @@ from heft.daemon.events import (
     AlarmChanged,
     AlarmKind,
     DeviceStatus,
-    Event,
     EventBus,
     MeasurementCaptured,
 )
 from heft.daemon.measurement import Measurement
 from heft.daemon.mqtt_link import MqttLink
-from heft.daemon.pipeline import BenchPipeline, SelectionError
-from heft.daemon.records import CalibrationRecord, ReferenceMass
+from heft.daemon.pipeline import BenchPipeline, PipelineOutput, SelectionError
 from heft.daemon.sd_notify import notify, watchdog_interval_s
+from heft.daemon.station_commands import StationCommands
 from heft.daemon.storage import StorageError, Store
-from heft.drivers.base import DriverError, TransportError, UnsupportedCommand
-from heft.drivers.reading import DeviceInfo, Reading
+from heft.drivers.base import DriverError, TransportError
+from heft.drivers.reading import ChannelRef, DeviceInfo, Reading
 from heft.drivers.recording import RecordingHeader, RecordingTransport, RecordingWriter
 from heft.drivers.registry import create_driver
 from heft.drivers.session import DeviceSession
@@ -73,8 +69,6 @@ log = logging.getLogger("heft.service")
 TICK_S = 0.2
 DEVICE_STATUS_EVERY_S = 1.0
 CALIBRATION_CHECK_EVERY_S = 60.0
-CALIBRATION_WINDOW_S = 1.5
-ZERO_SHIFT_LIMIT_FRACTION = 0.04  # of capacity; OIML R 76-1 4.5.1
 RECONNECT_MAX_WAIT_S = 5.0
 STORE_RETRY_MAX_WAIT_S = 10.0
 MQTT_RETRY_MAX_WAIT_S = 5.0  # a broker back after an outage is found within this long
@@ -131,10 +125,13 @@ class Service:
         self._clock = clock
         self._clock_utc = clock_utc
         self.pipeline: BenchPipeline | None = None
+        self.calibration: CalibrationWorkflow | None = None
+        self.commands: StationCommands | None = None
+        # The station's alarms: conditions from the pipeline, the calibration part and the
+        # service itself (devices, storage) all land here, and each change is logged and sent.
+        self.alarms = AlarmManager(config.station, clock_utc, self._alarm_changed)
         self.devices = {d.name: DeviceRuntime(d) for d in config.devices}
         self._to_store: asyncio.Queue[Measurement] | None = None
-        self._pending_zero: dict[str, CalibrationRecord] = {}
-        self._calibrating: set[str] = set()
         self.stored_count = 0
         self.mqtt_link: MqttLink | None = None
         self.ready = asyncio.Event()
@@ -157,18 +154,16 @@ class Service:
                 self.store = None
 
     async def _run(self, store: Store) -> None:
-        calibrations: dict[str, CalibrationRecord] = {}
-        for channel in self.config.channels:
-            record = active_record(store.calibrations(channel))
-            if record is not None:
-                calibrations[channel] = record
-        self.pipeline = BenchPipeline(
-            self.config,
-            self._clock_utc,
-            calibrations=calibrations,
-            first_seq=store.next_seq(self.config.station),
+        self._assemble(
+            BenchPipeline(
+                self.config,
+                self._clock_utc,
+                calibrations=stored_calibrations(store, self.config.channels),
+                first_seq=store.next_seq(self.config.station),
+            ),
+            store,
         )
-        self._to_store = asyncio.Queue()
+        assert self.calibration is not None
         # Alarms left active by the last run are re-evaluated now: close them in the log.
         for stale in store.active_alarms(self.config.station):
             with contextlib.suppress(StorageError):
@@ -177,7 +172,7 @@ class Service:
                                             "message": "service restarted; re-evaluated",
                                             "time_utc": self._clock_utc()})
                 )
-        self._check_calibrations()
+        self.calibration.check_due()
         async with asyncio.TaskGroup() as tasks:
             for runtime in self.devices.values():
                 tasks.create_task(self._supervise(runtime), name=f"device-{runtime.config.name}")
@@ -188,6 +183,20 @@ class Service:
             self.ready.set()
             notify("READY=1")
             log.info("station %s running: %d device(s)", self.config.station, len(self.devices))
+
+    def _assemble(self, pipeline: BenchPipeline, store: Store) -> None:
+        """Wire the parts that live while the service runs around ``pipeline`` and ``store``."""
+        self.pipeline = pipeline
+        self._to_store = asyncio.Queue()
+        # A run starts with no alarm held in memory (the log's leftovers are closed in _run).
+        self.alarms = AlarmManager(self.config.station, self._clock_utc, self._alarm_changed)
+        self.calibration = CalibrationWorkflow(
+            self.config, pipeline, store, self._apply_alarm, self._clock_utc
+        )
+        self.commands = StationCommands(
+            pipeline, self.calibration, self.alarms, self._route,
+            {name: rt.config.driver for name, rt in self.devices.items()}, self._zero_scale,
+        )
 
     async def _mqtt(self) -> None:
         assert self.store is not None
@@ -203,16 +212,24 @@ class Service:
 
     # ------------------------------------------------------------------------------ events
 
-    def _dispatch(self, events: list[Event]) -> None:
-        """Send pipeline events on; measurements go to the store first (published after)."""
-        for ev in events:
-            if isinstance(ev, MeasurementCaptured):
+    def _route(self, outputs: Iterable[PipelineOutput]) -> None:
+        """Send pipeline outputs on, in order; measurements go to the store first (published
+        after), alarm conditions to the station's alarms."""
+        for out in outputs:
+            if isinstance(out, MeasurementCaptured):
                 assert self._to_store is not None
-                self._to_store.put_nowait(ev.measurement)
-                continue
-            if isinstance(ev, AlarmChanged):
-                self._log_alarm(ev.alarm)
-            self.bus.publish(ev)
+                self._to_store.put_nowait(out.measurement)
+            elif isinstance(out, AlarmCondition):
+                self._apply_alarm(out)
+            else:
+                self.bus.publish(out)
+
+    def _apply_alarm(self, condition: AlarmCondition) -> None:
+        self.alarms.apply(condition)  # a change comes back through _alarm_changed
+
+    def _alarm_changed(self, alarm: Alarm) -> None:
+        self._log_alarm(alarm)
+        self.bus.publish(AlarmChanged(alarm=alarm))
 
     def _log_alarm(self, alarm: Alarm) -> None:
         if self.store is None:
@@ -257,14 +274,10 @@ class Service:
         )
 
     def _alarm_set(self, kind: AlarmKind, source: str, active: bool, message: str) -> None:
-        if self.pipeline is None:
+        """The service's own alarms (devices, storage): the first wording stays while active."""
+        if active and self.alarms.is_active(kind, source):
             return
-        alarms = self.pipeline.alarms
-        if not active:
-            alarms.clear(kind, source, message)
-        elif not alarms.is_active(kind, source):  # keep the first wording while it lasts
-            alarms.raise_alarm(kind, source, message)
-        self._dispatch(self.pipeline.drain())
+        self._apply_alarm(AlarmCondition(kind, source, active, message))
 
     # ------------------------------------------------------------------------------ devices
 
@@ -345,7 +358,7 @@ class Service:
                     runtime.last_t_mono_s = output.t_mono_s
                 elif isinstance(output, DeviceInfo):
                     self._check_channel_count(output)
-                self._dispatch(self.pipeline.feed(output))
+                self._route(self.pipeline.feed(output))
         finally:
             runtime.session = None
         raise TransportError(f"device {runtime.config.name!r}: the port closed")
@@ -357,9 +370,9 @@ class Service:
         have would otherwise never read anything, silently.
         """
         wanted = sorted({*self.config.geometry.channels, *self.config.channels})
+        refs = [ChannelRef.parse(ch) for ch in wanted]
         missing = [
-            ch for ch in wanted
-            if ch.split("/")[0] == info.device and int(ch.split("/")[1]) >= info.channels
+            str(ref) for ref in refs if ref.device == info.device and ref.index >= info.channels
         ]
         if missing:
             log.error(
@@ -396,7 +409,7 @@ class Service:
             )
         runtime.down_logged = True
         assert self.pipeline is not None
-        self._dispatch(self.pipeline.device_lost(name))
+        self._route(self.pipeline.device_lost(name))
         self._alarm_set(
             AlarmKind.DEVICE_OFFLINE,
             name,
@@ -434,7 +447,7 @@ class Service:
         while True:
             await asyncio.sleep(TICK_S)
             now = self._clock()
-            self._dispatch(self.pipeline.tick(now))
+            self._route(self.pipeline.tick(now))
             for runtime in self.devices.values():
                 # A device allowed to be quiet (a scanner) counts as connected once its port is
                 # open; the others once they have sent something.
@@ -455,256 +468,27 @@ class Service:
                         runtime.rate_t0, runtime.rate_n0 = now, runtime.readings
                     self._publish_device(runtime)
                 last_status = now
-            if now - last_cal >= CALIBRATION_CHECK_EVERY_S:
-                self._check_calibrations()
+            if now - last_cal >= CALIBRATION_CHECK_EVERY_S and self.calibration is not None:
+                self.calibration.check_due()
                 last_cal = now
             if watchdog is not None and now - last_dog >= watchdog:
                 notify("WATCHDOG=1")
                 last_dog = now
 
-    def _check_calibrations(self) -> None:
-        """Raise or clear calibration due/overdue alarms for every database-calibrated channel."""
-        assert self.pipeline is not None
-        today = self._clock_utc().date()
-        for channel in self.pipeline.channels:
-            cfg = self.config.channel(channel)
-            if cfg.source != "database" or not self._is_counts_channel(channel):
-                continue
-            status = due_status(channel, self.pipeline.calibrations.get(channel), cfg, today)
-            for kind in (AlarmKind.CALIBRATION_DUE, AlarmKind.CALIBRATION_OVERDUE):
-                active = status is not None and status.kind is kind
-                self.pipeline.alarms.set(kind, channel, active, status.message if status else "")
-        self._dispatch(self.pipeline.drain())
-
-    def _is_counts_channel(self, channel: str) -> bool:
-        """Channels of load-cell drivers read raw counts and need a calibration."""
-        device = channel.split("/")[0]
-        return self.config.device(device).driver == "beam" or channel in self.config.channels
-
     # ------------------------------------------------------------------------------ commands
 
     async def handle_command(self, cmd: api.Command) -> api.Reply:
         """Carry out one command; always returns a Reply (ok=False naming what was wrong)."""
-        name = cmd.command
-        rid = cmd.request_id
-        if self.pipeline is None:
-            return api.Reply(ok=False, command=name, request_id=rid, message="service not running")
-        try:
-            message, data = await self._execute(cmd)
-        except (SelectionError, CalibrationError, UnknownAlarmError, UnsupportedCommand) as err:
-            text = str(err) if not isinstance(err, KeyError) else f"no active alarm {err.args[0]!r}"
-            return api.Reply(ok=False, command=name, request_id=rid, message=text)
-        except (TransportError, StorageError) as err:
-            return api.Reply(ok=False, command=name, request_id=rid, message=str(err))
-        return api.Reply(ok=True, command=name, request_id=rid, message=message, data=data)
+        if self.commands is None:
+            return api.Reply(ok=False, command=cmd.command, request_id=cmd.request_id,
+                             message="service not running")
+        return await self.commands.handle(cmd)
 
-    async def _execute(self, cmd: api.Command) -> tuple[str, dict[str, Any]]:
-        p = self.pipeline
-        assert p is not None
-        if isinstance(cmd, api.Tare):
-            channels = p.tare(self._known_device(cmd.device))
-            self._dispatch(p.drain())
-            return f"tared {', '.join(channels)}", {"channels": channels}
-        if isinstance(cmd, api.Zero):
-            return await self._zero(cmd.device)
-        if isinstance(cmd, api.Rearm):
-            self._dispatch(p.rearm())
-            return "re-armed", {}
-        if isinstance(cmd, api.SelectJob):
-            p.select_job(cmd.job)
-            return f"job {p.job} (spec {p.spec_name})", {"job": p.job, "spec": p.spec_name}
-        if isinstance(cmd, api.SelectSpec):
-            p.select_spec(cmd.spec, cmd.club)
-            return f"spec {p.spec_name}", {"spec": p.spec_name, "club": p.club}
-        if isinstance(cmd, api.SetClubId):
-            p.set_club_id(cmd.club_id)
-            return f"next club is {p.club_id}", {"club_id": p.club_id}
-        if isinstance(cmd, api.SetBalancePoint):
-            self._dispatch(p.set_balance_point(cmd.balance_point))
-            bp = p.entered_balance_point_in
-            return f"balance point {bp:.2f} in set", {"balance_point_in": bp}
-        if isinstance(cmd, api.AcknowledgeAlarm):
-            alarm = p.alarms.acknowledge(cmd.key)
-            self._dispatch(p.drain())
-            return f"acknowledged {alarm.key}", {"key": alarm.key}
-        if isinstance(cmd, api.CalibrateZero):
-            return await self._calibrate_zero(cmd.channel)
-        if isinstance(cmd, api.CalibrateSpan):
-            return await self._calibrate_span(cmd)
-        assert isinstance(cmd, api.VerifyCheckMass)
-        return await self._verify(cmd)
-
-    def _known_device(self, device: str | None) -> str | None:
-        if device is not None and device not in self.devices:
-            raise SelectionError(f"no device {device!r}; devices: {', '.join(self.devices)}")
-        return device
-
-    async def _zero(self, device: str | None) -> tuple[str, dict[str, Any]]:
-        """Zero a scale with its own command; load-cell channels are zeroed by a tare."""
-        assert self.pipeline is not None
-        names = [self._known_device(device)] if device is not None else list(self.devices)
-        done: list[str] = []
-        for name in names:
-            assert name is not None
-            runtime = self.devices[name]
-            if runtime.config.driver == "scanner":
-                continue
-            session = runtime.session
-            if runtime.config.driver != "beam":
-                if session is None:
-                    raise TransportError(f"device {name!r} is not connected")
-                reply = await session.send_command("zero", reply_timeout_s=2.0)
-                if reply is not None and not reply.ok:
-                    raise SelectionError(f"device {name} refused to zero: {reply.detail}")
-                done.append(name)
-            else:
-                self.pipeline.tare(name)
-                done.append(name)
-        self._dispatch(self.pipeline.drain())
-        return f"zeroed {', '.join(done)}", {"devices": done}
-
-    def _counts_channel(self, channel: str) -> str:
-        assert self.pipeline is not None
-        if channel not in self.pipeline.channels:
-            raise SelectionError(
-                f"no channel {channel!r} in the geometry; channels: "
-                f"{', '.join(self.pipeline.channels)}"
-            )
-        if not self._is_counts_channel(channel):
-            raise SelectionError(f"{channel} is a gram scale; calibrate it with its own menu")
-        if self.config.channel(channel).source == "config":
-            raise SelectionError(
-                f"{channel} takes its calibration from the config (source = 'config')"
-            )
-        if channel in self._calibrating:
-            raise SelectionError(f"{channel} is already being calibrated")
-        return channel
-
-    async def _window(self, channel: str, step: str) -> CountsWindow:
-        """Raw counts over the next CALIBRATION_WINDOW_S seconds, refused unless still.
-
-        A window with a load lifted, set down or swinging in it would average the motion into
-        the zero or span and offset every later weight (daemon.stillness says when it is still).
-        """
-        assert self.pipeline is not None
-        self._calibrating.add(channel)
-        try:
-            start = self.pipeline.last_t
-            await asyncio.sleep(CALIBRATION_WINDOW_S)
-            counts = self.pipeline.recent_raw(channel, start + 1e-9)
-        finally:
-            self._calibrating.discard(channel)
-        window = CountsWindow.of(counts)
-        why = self.pipeline.motion(channel, counts, in_grams=False)
-        if why is not None:
-            raise CalibrationError(
-                f"{channel} was moving during the {step}: {why}; hold it still and try again"
-            )
-        return window
-
-    async def _store_calibration(self, record: CalibrationRecord) -> None:
-        assert self.store is not None
-        await asyncio.to_thread(self.store.add_calibration, record)
-
-    async def _calibrate_zero(self, channel: str) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(channel)
-        if self.pipeline.is_loaded(channel):
-            raise CalibrationError(
-                f"{channel} has a load on it; lift the club off and zero with the supports empty"
-            )
-        window = await self._window(channel, "zero")
-        if self.pipeline.is_loaded(channel):
-            raise CalibrationError(
-                f"{channel} was loaded during the zero; lift the club off and zero with the "
-                "supports empty"
-            )
-        current = self.pipeline.calibrations.get(channel)
-        self._check_zero_shift(channel, window, current)
-        record = zero_record(
-            self.config.station, channel, window, self._clock_utc(), current,
-            self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        self._pending_zero[channel] = record
-        if usable(record):
-            self.pipeline.set_calibration(record)
-            text = f"{channel} zeroed at {record.zero_counts:.0f} counts"
-        else:
-            text = f"{channel} zero taken ({record.zero_counts:.0f} counts); span next"
-        return text, {"calibration": record.model_dump(mode="json")}
-
-    def _check_zero_shift(
-        self, channel: str, window: CountsWindow, current: CalibrationRecord | None
-    ) -> None:
-        """Refuse a new zero that moves the old one by more than 4 % of capacity.
-
-        A zero-setting device may not act on more than 4 % of Max (OIML R 76-1 4.5.1); a larger
-        shift on a calibrated channel means something is resting on the beam, not drift.
-        """
-        if current is None or not usable(current):
-            return  # first zero of a new channel: nothing to compare with
-        shift_g = counts_to_g(current, window.mean_counts)
-        limit_g = ZERO_SHIFT_LIMIT_FRACTION * self.config.capture.capacity_for(channel)
-        if abs(shift_g) > limit_g:
-            raise CalibrationError(
-                f"{channel} reads {shift_g:+.1f} g against its current zero, more than the "
-                f"{limit_g:.0f} g (4 % of capacity) a zero may move; is something on the beam?"
-            )
-
-    async def _calibrate_span(self, cmd: api.CalibrateSpan) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(cmd.channel)
-        current = self.pipeline.calibrations.get(channel)
-        zero = self._pending_zero.get(channel) or current
-        if zero is None:
-            raise CalibrationError(f"{channel} has no zero; run calibrate_zero with it empty first")
-        window = await self._window(channel, "span")
-        reference = ReferenceMass(
-            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
-        )
-        record = span_record(
-            self.config.station, channel, zero, window, reference, self._clock_utc(),
-            self.config.channel(channel).calibration_interval_days, current,
-            self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        self._pending_zero.pop(channel, None)
-        self.pipeline.set_calibration(record)
-        self._check_calibrations()
-        text = f"{channel} spanned: {record.counts_per_g:.3f} counts/g, due {record.next_due}"
-        return text, {"calibration": record.model_dump(mode="json")}
-
-    async def _verify(self, cmd: api.VerifyCheckMass) -> tuple[str, dict[str, Any]]:
-        assert self.pipeline is not None
-        channel = self._counts_channel(cmd.channel)
-        current = self.pipeline.calibrations.get(channel)
-        if current is None or not usable(current):
-            raise CalibrationError(f"{channel} has no span yet; calibrate the span first")
-        window = await self._window(channel, "verify")
-        reference = ReferenceMass(
-            mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
-        )
-        tolerance = cmd.tolerance_g or default_verify_tolerance_g(
-            cmd.mass_g, self.config.capture.division_for(channel)
-        )
-        record = verify_record(
-            self.config.station, channel, current, window, reference, tolerance,
-            self._clock_utc(), self.pipeline.device_info.get(channel.split("/")[0]),
-        )
-        await self._store_calibration(record)
-        if not record.passed:
-            self.pipeline.alarms.raise_alarm(
-                AlarmKind.CALIBRATION_DUE,
-                channel,
-                f"{channel} failed verification: read {record.result_g:.2f} g on a "
-                f"{cmd.mass_g:g} g check mass",
-            )
-            self._dispatch(self.pipeline.drain())
-        verdict = "passed" if record.passed else "FAILED"
-        text = (
-            f"{channel} verify {verdict}: {record.result_g:.2f} g on {cmd.mass_g:g} g "
-            f"(residual {record.residual_g:+.2f} g, tolerance {tolerance:g} g)"
-        )
-        return text, {"calibration": record.model_dump(mode="json"), "passed": record.passed}
-
+    async def _zero_scale(self, name: str) -> None:
+        """Send a scale its own zero command."""
+        session = self.devices[name].session
+        if session is None:
+            raise TransportError(f"device {name!r} is not connected")
+        reply = await session.send_command("zero", reply_timeout_s=2.0)
+        if reply is not None and not reply.ok:
+            raise SelectionError(f"device {name} refused to zero: {reply.detail}")

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import enum
 import math
+import re
 from dataclasses import dataclass
 from typing import Final
 
@@ -25,6 +26,52 @@ class Flag(enum.Flag):
     FAULT = enum.auto()  # device reports an internal fault
     NEEDS_CALIBRATION = enum.auto()
     NEEDS_ZERO = enum.auto()
+
+
+DEVICE_NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_.-]*$"
+# No leading zeros in the index: "beam/01" would not read back as the same text.
+CHANNEL_PATTERN = rf"^({DEVICE_NAME_PATTERN[1:-1]})/(0|[1-9][0-9]*)$"
+_CHANNEL_TEXT = re.compile(CHANNEL_PATTERN)
+_DEVICE_NAME = re.compile(DEVICE_NAME_PATTERN)
+
+
+class ChannelRefError(ValueError):
+    """Text that is not a ``<device>/<index>`` channel reference; the message quotes it."""
+
+
+@dataclass(frozen=True, slots=True, order=True)
+class ChannelRef:
+    """One channel of one device: ``device`` name and ``index`` (0 for a one-channel scale).
+
+    Its text form ``"<device>/<index>"`` (``"beam/1"``) is what configs, records, events and
+    topics carry; :meth:`parse` reads it once and ``str()`` gives the same text back.
+    """
+
+    device: str
+    index: int
+
+    def __post_init__(self) -> None:
+        if not _DEVICE_NAME.match(self.device):
+            raise ChannelRefError(
+                f"device name {self.device!r} must start with a letter or digit and hold only "
+                "letters, digits, '_', '.' and '-'"
+            )
+        if self.index < 0:
+            raise ChannelRefError(f"channel index {self.index} of {self.device!r} is negative")
+
+    @classmethod
+    def parse(cls, text: str) -> ChannelRef:
+        """``"beam/1"`` -> ChannelRef("beam", 1); raises ChannelRefError naming the text."""
+        found = _CHANNEL_TEXT.match(text)
+        if found is None:
+            raise ChannelRefError(
+                f"{text!r} is not a channel reference; expected '<device>/<index>' such as "
+                "'beam/0' (a device name, a slash and a channel number)"
+            )
+        return cls(found[1], int(found[2]))
+
+    def __str__(self) -> str:
+        return f"{self.device}/{self.index}"
 
 
 class ValueKind(enum.Enum):
@@ -53,6 +100,11 @@ class Reading:
     raw: bytes
     seq: int | None = None
     device_time_s: float | None = None
+
+    @property
+    def ref(self) -> ChannelRef:
+        """The channel this reading came from, as ``<device>/<channel>``."""
+        return ChannelRef(self.device, self.channel)
 
     @property
     def usable(self) -> bool:

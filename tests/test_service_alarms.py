@@ -6,7 +6,7 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from heft.daemon.alarms import AlarmManager, UnknownAlarmError
+from heft.daemon.alarms import AlarmCondition, AlarmManager, UnknownAlarmError
 from heft.daemon.events import Alarm, AlarmKind
 
 
@@ -55,3 +55,18 @@ def test_set_follows_a_condition() -> None:
     for active in (False, True, True, False, False):
         mgr.set(AlarmKind.OVERLOAD, "beam/0", active, "overloaded")
     assert [a.active for a in seen] == [True, False]
+
+
+def test_a_condition_raises_rewords_or_clears_with_its_message() -> None:
+    mgr, seen, _ = make()
+    offline = AlarmCondition(AlarmKind.DEVICE_OFFLINE, "beam", True, "beam offline")
+    assert mgr.apply(offline) is not None
+    assert mgr.apply(offline) is None  # the same condition again changes nothing
+    reworded = AlarmCondition(AlarmKind.DEVICE_OFFLINE, "beam", True, "beam gone")
+    assert mgr.apply(reworded) is not None
+    back = mgr.apply(AlarmCondition(AlarmKind.DEVICE_OFFLINE, "beam", False, "beam is back"))
+    assert back is not None and not back.active and back.message == "beam is back"
+    assert mgr.apply(AlarmCondition(AlarmKind.DEVICE_OFFLINE, "beam", False, "again")) is None
+    assert [(a.active, a.message) for a in seen] == [
+        (True, "beam offline"), (True, "beam gone"), (False, "beam is back"),
+    ]

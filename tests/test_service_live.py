@@ -303,9 +303,7 @@ async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm
         Placement(Club(100.0, 4.0), 7.5, 11.0),  # the 100 g check mass
     ]
     async with bench(tmp_path, plan, calibrated=False) as (svc, pty, _events):
-        p = svc.pipeline
-        assert p is not None
-        assert p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")  # never spanned
+        assert svc.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")  # never spanned
         await wait_until(lambda: svc.devices["beam"].connected, what="beam connected")
 
         async def at_bench_time(t_s: float) -> None:
@@ -327,8 +325,8 @@ async def test_calibration_zero_span_verify_are_recorded_and_clear_the_due_alarm
         assert record["counts_per_g"] == pytest.approx(418.73, rel=1e-3)
         assert record["reference"] == {"mass_g": 200.0, "weight_class": "M1",
                                        "weight_id": "LCW-REF-200"}
-        assert not p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")
-        assert p.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/1")
+        assert not svc.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/0")
+        assert svc.alarms.is_active(AlarmKind.CALIBRATION_OVERDUE, "beam/1")
         await at_bench_time(8.8)
         verify = await svc.handle_command(api.VerifyCheckMass(
             command="verify", channel="beam/0", mass_g=100.0, weight_id="LCW-CHK-100"))
@@ -427,7 +425,8 @@ async def test_a_zero_whose_window_sees_a_club_laid_down_is_refused(tmp_path: Pa
         zero = asyncio.create_task(
             svc.handle_command(api.CalibrateZero(command="calibrate_zero", channel="beam/1"))
         )
-        await wait_until(lambda: "beam/1" in svc._calibrating, what="zero window open")
+        await wait_until(lambda: svc.calibration is not None and "beam/1" in svc.calibration.busy,
+                         what="zero window open")
         with pty.locked() as device:  # a club laid down inside the window
             device.timeline.place(Club(405.0, 29.2), pty.bench_time_s() + 0.3)
         reply = await asyncio.wait_for(zero, timeout=30)

@@ -14,9 +14,10 @@ from pathlib import Path
 
 import pytest
 
-from heft.daemon.events import AlarmChanged, AlarmKind, Event, MeasurementCaptured
+from heft.daemon.alarms import AlarmCondition, AlarmManager
+from heft.daemon.events import Alarm, AlarmKind, MeasurementCaptured
 from heft.daemon.measurement import Measurement, Verdict
-from heft.daemon.pipeline import REPLAY_NAMESPACE, BenchPipeline, SelectionError
+from heft.daemon.pipeline import REPLAY_NAMESPACE, BenchPipeline, PipelineOutput, SelectionError
 from heft.daemon.replay import replay
 from heft.daemon.version import __version__
 from heft.drivers.registry import create_driver
@@ -38,13 +39,13 @@ T0 = datetime(2026, 5, 4, 8, 30, tzinfo=UTC)
 def run_pipeline(
     plan: list[Placement], until_s: float, *, tags: dict[float, str] | None = None,
     pipeline: BenchPipeline | None = None,
-) -> tuple[BenchPipeline, list[Event]]:
+) -> tuple[BenchPipeline, list[PipelineOutput]]:
     now = [0.0]
     p = pipeline or BenchPipeline(
         station_config(port="/dev/null", db=Path("x.db")), lambda: T0 + timedelta(seconds=now[0])
     )
     driver = create_driver("beam", "beam")
-    events: list[Event] = []
+    events: list[PipelineOutput] = []
     pending_tags = sorted((tags or {}).items())
     for chunk in beam_bytes(plan, until_s):
         now[0] = chunk.t
@@ -56,8 +57,15 @@ def run_pipeline(
     return p, events
 
 
-def measurements(events: list[Event]) -> list[Measurement]:
+def measurements(events: list[PipelineOutput]) -> list[Measurement]:
     return [e.measurement for e in events if isinstance(e, MeasurementCaptured)]
+
+
+def alarm_changes(outputs: list[PipelineOutput]) -> list[Alarm]:
+    """The alarm changes the outputs make once applied to the station's alarms (the service)."""
+    alarms = AlarmManager("bench-1", lambda: T0)
+    changes = (alarms.apply(o) for o in outputs if isinstance(o, AlarmCondition))
+    return [a for a in changes if a is not None]
 
 
 def test_each_placement_becomes_one_measurement_with_the_right_numbers() -> None:
@@ -83,12 +91,30 @@ def test_each_placement_becomes_one_measurement_with_the_right_numbers() -> None
     assert [m.seq for m in ms] == [1, 2, 3]
     assert [m.verdict for m in ms] == [Verdict.PASS, Verdict.PASS, Verdict.FAIL]
     assert ms[2].checks[0].check == "swingweight" and ms[2].checks[0].verdict is Verdict.FAIL
-    alarms = [e.alarm for e in events if isinstance(e, AlarmChanged)]
+    alarms = alarm_changes(events)
     assert [(a.kind, a.active) for a in alarms] == [(AlarmKind.OUT_OF_SPEC, True)]
     # Essentials first and short: the dashboard's alarm banner is one 120-column line.
     assert alarms[0].message.startswith("club LCW-6i-0001: swing weight D3.")
     assert "points over the limit (D2 ± 0.5)" in alarms[0].message
     assert len(alarms[0].message) <= 90
+
+
+def test_the_pipeline_hands_out_alarm_conditions_after_their_measurement() -> None:
+    # The pipeline keeps no alarm state: each verdict comes out as a condition, right after the
+    # measurement it judges, and the service decides what is a change (alarm_changes above).
+    plan = placements(LARKSPUR_CLUBS)
+    p, events = run_pipeline(plan, plan[-1].t_off_s + 1.0)
+    assert not hasattr(p, "alarms")
+    judged = [
+        (events[i - 1].measurement.seq, o.active, o.message)
+        for i, o in enumerate(events)
+        if isinstance(o, AlarmCondition) and o.kind is AlarmKind.OUT_OF_SPEC
+        and isinstance(events[i - 1], MeasurementCaptured)
+    ]
+    assert [(seq, active) for seq, active, _ in judged] == [(1, False), (2, False), (3, True)]
+    assert judged[0][2] == "club #1 in spec"
+    assert all(o.source == "station" for o in events
+               if isinstance(o, AlarmCondition) and o.kind is AlarmKind.OUT_OF_SPEC)
 
 
 def test_a_club_left_on_the_beam_is_captured_once() -> None:
@@ -104,7 +130,7 @@ def test_rearm_allows_a_second_capture_of_the_same_club() -> None:
     p.rearm()
     # Continue the same bench from 5 s on (the driver keeps its state across chunks).
     driver = create_driver("beam", "beam")
-    more: list[Event] = []
+    more: list[PipelineOutput] = []
     for chunk in beam_bytes(plan, 9.0):
         for out in driver.feed(chunk.data, chunk.t):
             if chunk.t > 5.0:
@@ -194,10 +220,7 @@ def test_a_small_load_left_on_the_empty_beam_raises_the_needs_zero_alarm() -> No
     from heft.drivers.sim.physics import Club
 
     _, events = run_pipeline([Placement(Club(3.0, 4.0), 2.0, 60.0)], 30.0)
-    changes = [
-        (e.alarm.kind, e.alarm.active) for e in events
-        if isinstance(e, AlarmChanged) and e.alarm.kind is AlarmKind.NEEDS_ZERO
-    ]
+    changes = [(a.kind, a.active) for a in alarm_changes(events) if a.kind is AlarmKind.NEEDS_ZERO]
     assert changes and changes[0] == (AlarmKind.NEEDS_ZERO, True)
     assert not measurements(events)
 

@@ -7,7 +7,6 @@ from domain.md's definition, (M14 - 161 oz*in) / 1.75 oz*in.
 
 from __future__ import annotations
 
-import asyncio
 import random
 from datetime import UTC, datetime
 from pathlib import Path
@@ -16,9 +15,10 @@ import pytest
 
 from heft.daemon import command_api as api
 from heft.daemon.config import StationConfig, load_config
-from heft.daemon.events import Event, MeasurementCaptured
-from heft.daemon.pipeline import BenchPipeline
+from heft.daemon.events import MeasurementCaptured
+from heft.daemon.pipeline import BenchPipeline, PipelineOutput
 from heft.daemon.service import Service
+from heft.daemon.storage import Store
 from heft.drivers.reading import ClubTag, Flag, Reading, ValueKind
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
@@ -51,12 +51,12 @@ async def test_set_balance_point_reply_carries_the_value_set(tmp_path: Path) -> 
     config = qc2_config(tmp_path)
     service = Service(config)
     pipeline = BenchPipeline(config, lambda: T0)
-    service.pipeline = pipeline  # the pure pipeline, fed below without ports
-    events: list[Event] = []
+    service._assemble(pipeline, Store(tmp_path / "heft.db"))  # fed below without ports
+    events: list[PipelineOutput] = []
     for r in weighing("balance", 405.0, 1.0, 5.0, 4.0):  # the club still on the balance
         events.extend(pipeline.feed(r))
     assert not any(isinstance(e, MeasurementCaptured) for e in events)  # waits for the BP
-    service._to_store = asyncio.Queue()
+    assert service._to_store is not None
     reply = await service.handle_command(
         api.SetBalancePoint(command="set_balance_point", balance_point="29.2in")
     )

@@ -59,7 +59,7 @@ def test_tare_mid_placement_is_refused_and_a_still_tare_is_taken() -> None:
         p.tare("beam")
     assert all(p._channels[ch].tare_g == 0.0 for ch in p.channels)  # nothing tared
     quiet, _ = run_pipeline(plan, 0.9)  # empty and still
-    assert quiet.tare(None) == ["beam/0", "beam/1"]
+    assert quiet.tare(None).channels == ["beam/0", "beam/1"]
 
 
 def test_tare_without_readings_is_refused(tmp_path: Path) -> None:
