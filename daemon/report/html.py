@@ -52,4 +52,4 @@ def render_html(report: Report) -> str:
         s=report.summary,
         css=Markup(CSS),
         figures=figures,
-    )
+    ).lstrip()  # the macros ahead of the page leave blank lines

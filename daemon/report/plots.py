@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import math
+import re
 from collections.abc import Callable, Mapping, Sequence
 from contextlib import AbstractContextManager
 from typing import TYPE_CHECKING, Final
@@ -64,12 +65,20 @@ def _style(salt: str) -> AbstractContextManager[object]:
     )
 
 
-def _svg(fig: Figure) -> str:
-    """The figure as an ``<svg>`` element (no XML prolog) for pasting into HTML."""
+_ID_REFERENCE: Final = re.compile(r'(\bid="|href="#|url\(#)')
+
+
+def _svg(fig: Figure, prefix: str) -> str:
+    """The figure as an ``<svg>`` element (no XML prolog) for pasting into HTML.
+
+    matplotlib numbers its element ids per figure (``patch_1``, ``line2d_3``...), so two
+    figures on one page would share ids: every id, and every reference to one, gets
+    ``prefix``.
+    """
     out = io.StringIO()
     fig.savefig(out, format="svg", metadata={"Date": None})
     text = out.getvalue()
-    return text[text.index("<svg") :]
+    return _ID_REFERENCE.sub(lambda m: f"{m.group(1)}{prefix}-", text[text.index("<svg") :])
 
 
 def _new_figure() -> tuple[Figure, Axes]:
@@ -146,7 +155,7 @@ def swingweight_svg(rows: Sequence[ClubRow]) -> str:
         ax.set_ylabel("Swing weight (Lorythmic)")
         ax.set_title("Swing weight of each club, ± U (k = 2), against its target band", loc="left")
         _x_axis(ax, rows)
-        return _svg(fig)
+        return _svg(fig, "fig-sw")
 
 
 def _points_tick(points: float) -> str:
@@ -169,4 +178,4 @@ def weight_svg(rows: Sequence[ClubRow]) -> str:
         ax.set_ylabel("Total weight (g)")
         ax.set_title("Total weight through the set, ± U (k = 2)", loc="left")
         _x_axis(ax, rows)
-        return _svg(fig)
+        return _svg(fig, "fig-weight")
