@@ -56,6 +56,9 @@ def test_values_round_half_up_and_uncertainties_round_up() -> None:
     q = Quantity.of(421.25, 0.31, Decimal("0.1"))
     assert (q.text, q.u_text, q.value, q.u) == ("421.3", "0.4", 421.3, 0.4)
     assert Quantity.of(29.0, None, Decimal("0.01")).text == "29.00"
+    # A damaged record prints as such instead of stopping the report.
+    broken = Quantity.of(float("nan"), float("inf"), Decimal("0.1"))
+    assert (broken.text, broken.u_text) == ("not a number", None)
 
 
 def test_bands_print_as_target_and_tolerance() -> None:
@@ -115,6 +118,10 @@ def test_rows_carry_targets_from_the_checks_and_notes_of_failed_checks() -> None
     assert seven.swingweight_u_text == "0.3"  # 0.27 point rounded up to 0.1 point
     failed = report.rows[4].history[0]
     assert failed.notes and "swing weight" in failed.notes[0]
+    # Each plot marks its own check: the heavy 8-iron failed on swing weight, not on weight.
+    assert failed.check_verdict("swingweight") is Verdict.FAIL
+    assert failed.check_verdict("total_weight") is Verdict.PASS
+    assert failed.check_verdict("balance_point") is Verdict.NO_SPEC
     assert report.rows[6].verdict is Verdict.NEAR_LIMIT and report.rows[6].notes
 
 

@@ -183,3 +183,21 @@ def test_pdf_plots_are_drawn_where_the_figures_are(pdf: pdfium.PdfDocument) -> N
     assert _near(rgb[top:bottom, left:right], VERDICT_COLOURS[Verdict.NEAR_LIMIT]) > 20
     # The pixel test can fail: the table page has no band colour on it anywhere.
     assert _near(_bitmap(pdf[0]), BAND_COLOUR) == 0
+
+
+def test_a_club_without_spec_or_calibration_record_still_reports() -> None:
+    from heft.daemon.measurement import Verdict as V
+    from heft.daemon.report.model import build_report
+    from tests.sample_records import make_measurement
+
+    # A gram scale (calibrated in its own firmware) and no spec selected: nothing to judge.
+    m = make_measurement(1, job=None, verdict=V.NO_SPEC).model_copy(
+        update={"calibration_ids": [], "checks": []}
+    )
+    made = build_report([m], [], tz=UTC, tz_name="UTC", generated_utc=datetime.now(UTC),
+                        generator="0.1.0")  # fmt: skip
+    assert made is not None and made.summary.no_spec == 1
+    assert made.title == "Club measurement report" and "Job" not in dict(made.header)
+    page = render_html(made)
+    assert "NO SPEC" in page and "name no calibration record" in page
+    assert 'class="spec"' not in page  # no band to print under the values

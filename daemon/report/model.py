@@ -81,6 +81,7 @@ class ClubRow:
     weight_band: Band | None
     balance_band: Band | None
     verdict: Verdict
+    check_verdicts: tuple[tuple[str, Verdict], ...]  # (check, its verdict) for each spec check
     notes: tuple[str, ...]  # the messages of checks that failed or came near a limit
     calibration_ids: tuple[str, ...]
     history: tuple[ClubRow, ...] = ()
@@ -88,6 +89,10 @@ class ClubRow:
     @property
     def verdict_text(self) -> str:
         return VERDICT_TEXT[self.verdict]
+
+    def check_verdict(self, check: str) -> Verdict:
+        """The verdict of one check ('swingweight', 'total_weight'); NO_SPEC when not checked."""
+        return dict(self.check_verdicts).get(check, Verdict.NO_SPEC)
 
 
 @dataclass(frozen=True, slots=True)
@@ -160,6 +165,7 @@ def club_row(m: Measurement, number: int, tz: tzinfo) -> ClubRow:
         weight_band=_band(m, "total_weight", WEIGHT_STEP_G),
         balance_band=_band(m, "balance_point", BALANCE_STEP_IN),
         verdict=m.verdict,
+        check_verdicts=tuple((c.check, c.verdict) for c in m.checks),
         notes=tuple(
             c.message for c in m.checks if c.verdict in (Verdict.FAIL, Verdict.NEAR_LIMIT)
         ),

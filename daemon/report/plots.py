@@ -107,10 +107,13 @@ def _bands(ax: Axes, rows: Sequence[ClubRow], band_of: Callable[[ClubRow], Band 
                linewidth=0.6, label="target band", zorder=1)  # fmt: skip
 
 
-def _points(ax: Axes, rows: Sequence[ClubRow], value_of: Callable[[ClubRow], Quantity]) -> None:
-    """Each club's value with its ±U error bar, one series per verdict (for the legend)."""
+def _points(
+    ax: Axes, rows: Sequence[ClubRow], value_of: Callable[[ClubRow], Quantity], check: str
+) -> None:
+    """Each club's value with its ±U error bar, one series per verdict of ``check`` (a club
+    that fails on swing weight is not marked a fail on the weight plot if its weight is in)."""
     for verdict in Verdict:
-        chosen = [r for r in rows if r.verdict is verdict]
+        chosen = [r for r in rows if r.check_verdict(check) is verdict]
         if not chosen:
             continue
         q = [value_of(r) for r in chosen]
@@ -149,7 +152,7 @@ def swingweight_svg(rows: Sequence[ClubRow]) -> str:
     with _style("heft-report-swingweight"):
         fig, ax = _new_figure()
         _bands(ax, rows, lambda r: r.swingweight_band)
-        _points(ax, rows, lambda r: r.swingweight_points)
+        _points(ax, rows, lambda r: r.swingweight_points, "swingweight")
         ax.yaxis.set_major_locator(MaxNLocator(nbins=6, steps=[1, 2, 5, 10]))
         ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: _points_tick(v)))
         ax.set_ylabel("Swing weight (Lorythmic)")
@@ -174,7 +177,7 @@ def weight_svg(rows: Sequence[ClubRow]) -> str:
         ax.plot([r.number for r in rows], [r.weight_g.value for r in rows], color="#9a9a9a",
                 linewidth=0.8, zorder=2)  # fmt: skip
         _bands(ax, rows, lambda r: r.weight_band)
-        _points(ax, rows, lambda r: r.weight_g)
+        _points(ax, rows, lambda r: r.weight_g, "total_weight")
         ax.set_ylabel("Total weight (g)")
         ax.set_title("Total weight through the set, ± U (k = 2)", loc="left")
         _x_axis(ax, rows)

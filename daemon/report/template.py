@@ -151,12 +151,13 @@ firmware, for example).</p>
 <section class="plots">
 <h2>Plots</h2>
 <figure>{{ figures[0] }}
-  <figcaption>Figure 1. Swing weight of each club (marker) with its expanded uncertainty
-  (error bar, k = 2) against the club's target band (shaded). Numbers on the x axis are the
-  table's No.</figcaption></figure>
+  <figcaption>Figure 1. Swing weight of each club (marker: the verdict of its swing-weight
+  check) with its expanded uncertainty (error bar, k = 2) against the club's target band
+  (shaded). Numbers on the x axis are the table's No.</figcaption></figure>
 <figure>{{ figures[1] }}
-  <figcaption>Figure 2. Total weight of each club through the set, in capture order, with its
-  expanded uncertainty (k = 2) and the club's weight band where the spec sets one.</figcaption>
+  <figcaption>Figure 2. Total weight of each club through the set, in capture order (marker:
+  the verdict of its weight check), with its expanded uncertainty (k = 2) and the club's weight
+  band where the spec sets one.</figcaption>
 </figure>
 </section>
 

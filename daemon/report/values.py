@@ -8,6 +8,7 @@ computed would claim more than the measurement knows.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from decimal import ROUND_CEILING, ROUND_HALF_UP, Decimal
 from typing import Final
@@ -18,6 +19,8 @@ from heft.daemon.physics.swingweight import describe_points
 WEIGHT_STEP_G: Final = Decimal("0.1")
 BALANCE_STEP_IN: Final = Decimal("0.01")
 POINTS_STEP: Final = Decimal("0.1")
+
+NOT_A_NUMBER: Final = "not a number"
 
 # Float noise is dropped before rounding: 0.30000000000000004 is 0.3, not a reason to round U up
 # to 0.4. Twelve significant digits is far below any step here and far above double rounding.
@@ -62,6 +65,10 @@ class Quantity:
 
     @classmethod
     def of(cls, value: float, u: float | None, step: Decimal) -> Quantity:
+        if u is not None and not (math.isfinite(u) and u >= 0):
+            u = None  # a record can only carry this by damage; print the value without it
+        if not math.isfinite(value):
+            return cls(value=math.nan, u=None, text=NOT_A_NUMBER, u_text=None)
         shown = round_half_up(value, step)
         shown_u = round_up(u, step) if u is not None else None
         return cls(
@@ -74,6 +81,8 @@ class Quantity:
 
 def points_text(points: float) -> str:
     """Lorythmic label of ``points`` at the report's resolution (0.1 point): 'D1.9', '<A0'."""
+    if not math.isfinite(points):
+        return NOT_A_NUMBER
     return describe_points(float(round_half_up(points, POINTS_STEP)), decimals=1)
 
 
