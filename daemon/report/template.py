@@ -58,6 +58,7 @@ figcaption { font-size: 7.5pt; color: #333; margin-top: 1mm; }
 .statement { border-left: 2pt solid #7ea6d3; padding: 1mm 3mm; background: #f6f9fd;
              font-size: 7.5pt; margin: 0; break-inside: avoid; }
 .muted { color: #666; }
+.nowrap { white-space: nowrap; }
 .plots { break-before: page; }
 @media screen { .plots { margin-top: 8mm; } }
 @media print {
@@ -133,9 +134,10 @@ measurement number: the store keeps every measurement, append-only, under it.</p
   <tbody>
   {% for c in report.calibrations %}
     <tr>
-      <td>{{ c.id }}</td><td>{{ c.kind or "—" }}</td><td>{{ c.channel or "—" }}</td>
-      <td>{{ c.reference_text or "—" }}</td><td>{{ c.when_text or "—" }}</td>
-      <td>{{ c.due_text or "—" }}</td><td>{{ c.device_text or "—" }}</td>
+      <td class="nowrap">{{ c.id }}</td><td>{{ c.kind or "—" }}</td>
+      <td class="nowrap">{{ c.channel or "—" }}</td>
+      <td>{{ c.reference_text or "—" }}</td><td class="nowrap">{{ c.when_text or "—" }}</td>
+      <td class="nowrap">{{ c.due_text or "—" }}</td><td>{{ c.device_text or "—" }}</td>
       <td>{{ c.operator or "—" }}</td><td>{{ c.used_by }}</td>
       <td>{{ cal_note(c) }}</td>
     </tr>
