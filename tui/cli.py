@@ -27,6 +27,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "run",
     "replay",
     "export",
+    "report",
     "devices",
     "schema",
 )

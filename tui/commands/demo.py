@@ -156,12 +156,17 @@ def station_config(
 
 
 def seed_calibrations(db: Path, today: date) -> None:
-    """Span records as if the beam was calibrated 85 days ago; beam/1 falls due in 5 days."""
+    """Span records as if the beam was calibrated 85 days ago; beam/1 falls due in 5 days.
+
+    A store kept from an earlier run (``--db``) keeps its own records: none is added twice.
+    """
     beam = SCENARIO.beam
     store = Store(db)
     try:
         for ch, due_in_days in zip(beam.channels, (45, 5), strict=False):
             channel = f"beam/{ch.bench_channel}"
+            if store.latest_calibration(channel) is not None:
+                continue
             store.add_calibration(
                 CalibrationRecord(
                     id=f"demo-{ch.bench_channel}-span",
@@ -328,11 +333,12 @@ def _log_failure(task: asyncio.Task[None]) -> None:
 
 @contextlib.contextmanager
 def demo_bench(
-    *, mqtt: MqttSettings | None = None, seed: int = 2417, clubs: int = 2000
+    *, mqtt: MqttSettings | None = None, seed: int = 2417, clubs: int = 2000, db: Path | None = None
 ) -> Iterator[ServiceThread]:
     """Simulated beam on a pty + the service on its thread, in a temporary folder.
 
-    Everything is stopped and the folder removed on exit, whatever happened inside.
+    Everything is stopped and the folder removed on exit, whatever happened inside; the store
+    is kept only when ``db`` names where it goes.
     """
     with tempfile.TemporaryDirectory(prefix="heft-demo-") as workdir:
         plan = demo_plan(clubs, seed)
@@ -346,8 +352,9 @@ def demo_bench(
             PtyDevice(beam, link=folder / "beam") as bench,
             PtyDevice(scanner_device, link=folder / "scanner") as scanner,
         ):
-            seed_calibrations(folder / "heft.db", datetime.now(UTC).date())
-            config = station_config(bench.path, scanner.path, folder / "heft.db", mqtt)
+            db = db or folder / "heft.db"
+            seed_calibrations(db, datetime.now(UTC).date())
+            config = station_config(bench.path, scanner.path, db, mqtt)
             runner = ServiceThread(config, plan, bench, timeline, scanner_device)
             runner.start()
             try:
@@ -399,6 +406,8 @@ def register(subparsers: Any) -> None:
     p.add_argument("--broker", metavar="URL", help="also publish to this MQTT broker")
     p.add_argument("--seed", type=int, default=2417, help="scenario seed (default 2417)")
     p.add_argument("--bell", action="store_true", help="ring the terminal bell on FAIL and alarms")
+    p.add_argument("--db", type=Path, metavar="PATH",
+                   help="keep the store at PATH (e.g. for heft report); default: a temporary one")
     p.add_argument(
         "--headless-seconds",
         type=float,
@@ -422,10 +431,13 @@ def run(args: argparse.Namespace) -> int:
             parser.error(f"--broker: {err}")
     if args.headless_seconds is not None and not args.headless_seconds > 0:
         parser.error("--headless-seconds: expected a number of seconds > 0")
+    if args.db is not None and not args.db.parent.is_dir():
+        parser.error(f"--db: no folder {args.db.parent} to keep the store in")
     started = time.monotonic()
     stopper = StopOnSignal()
     stopper.install()
-    with demo_bench(mqtt=mqtt, seed=args.seed) as runner:
+    db = args.db.resolve() if args.db is not None else None
+    with demo_bench(mqtt=mqtt, seed=args.seed, db=db) as runner:
         assert runner.loop is not None
         source = InProcessSource(
             runner.bus,
@@ -446,7 +458,8 @@ def run(args: argparse.Namespace) -> int:
                 app.run(headless=True, size=(120, 40))
         finally:
             stopper.stopping = True
-        workdir = Path(runner.config.storage.path).parent
+        assert runner.bench.link is not None  # demo_bench links the beam inside its folder
+        workdir = runner.bench.link.parent
         if runner.error is not None:
             print(f"heft demo: the service stopped: {runner.error}", file=sys.stderr)
             return 1
@@ -458,6 +471,8 @@ def run(args: argparse.Namespace) -> int:
         f"ui errors {app.ui_errors}; temporary files "
         f"{'left in' if workdir.exists() else 'removed:'} {workdir}"
     )
+    if args.db is not None:
+        print(f"heft demo: store kept at {args.db} (heft report --db {args.db} -o report.html)")
     for m in shown[-10:]:
         print(f"  #{m.seq} {m.club or '-'} {m.club_id or '-'} {m.swingweight} "
               f"{m.total_weight_g:.1f} g {m.verdict.value}")
