@@ -47,7 +47,7 @@ class Station:
 
     def measure(self, m: Measurement) -> None:
         self.store.add_measurement(m)  # committed first, as the service does
-        self.bus.publish(MeasurementCaptured(m))
+        self.bus.publish(MeasurementCaptured(measurement=m))
 
 
 @contextlib.asynccontextmanager

@@ -139,13 +139,19 @@ def _placement(
             wobble = settle * target * 0.05 * (1 if i % 2 else -1)
             value = target + wobble + rng.gauss(0.0, 0.04)
             flags = Flag.STABLE if settle < 0.05 else Flag.MOTION
-            events.append(LiveReading(STATION, channel, t, round(value, 2), flags))
+            events.append(LiveReading(station=STATION, channel=channel, t_mono_s=t,
+                                      value_g=round(value, 2), flags=flags))
     return events
 
 
 def _alarm(kind: AlarmKind, source: str, active: bool, message: str, seq: int) -> AlarmChanged:
     when = START_UTC + timedelta(seconds=20 * seq + 1)
-    return AlarmChanged(Alarm(STATION, kind, source, active, message, when))
+    return AlarmChanged(alarm=Alarm(station=STATION, kind=kind, source=source, active=active,
+                                    message=message, time_utc=when))
+
+
+def _capture(state: CaptureState, clock: _Clock) -> CaptureStateChanged:
+    return CaptureStateChanged(station=STATION, state=state, t_mono_s=clock.tick())
 
 
 def session_events(clubs: int = len(BUILT), samples_per_club: int = 24) -> list[Event]:
@@ -153,42 +159,44 @@ def session_events(clubs: int = len(BUILT), samples_per_club: int = 24) -> list[
     rng = random.Random(2417)
     clock = _Clock()
     events: list[Event] = [
-        DeviceStatus(STATION, "beam", True, "/dev/heft-beam", 80.0, 0, None, None,
-                     "LK-beam2", "1.3.0"),
-        DeviceStatus(STATION, "scan", False, "/dev/heft-scan", None, 3, None, None,
-                     "hand scanner", ""),
+        DeviceStatus(station=STATION, device="beam", connected=True, port="/dev/heft-beam",
+                     sample_rate_hz=80.0, frame_errors=0, model="LK-beam2", firmware="1.3.0"),
+        DeviceStatus(station=STATION, device="scan", connected=False, port="/dev/heft-scan",
+                     frame_errors=3, model="hand scanner"),
         _alarm(AlarmKind.DEVICE_OFFLINE, "scan", True,
                "scan on /dev/heft-scan: no data for 2 s; retrying", 0),
         _alarm(AlarmKind.CALIBRATION_DUE, "beam/1", True,
                "beam/1 calibration due in 5 days (2026-03-19)", 0),
-        CaptureStateChanged(STATION, CaptureState.EMPTY, clock.tick()),
+        CaptureStateChanged(station=STATION, state=CaptureState.EMPTY, t_mono_s=clock.tick()),
     ]
     out_of_spec = False
     for seq, (club, (weight_g, points)) in enumerate(list(BUILT.items())[:clubs], start=1):
         butt_g, head_g = support_readings_g(weight_g, points)
-        events.append(CaptureStateChanged(STATION, CaptureState.SETTLING, clock.tick()))
+        events.append(_capture(CaptureState.SETTLING, clock))
         events += _placement(clock, rng, butt_g, head_g, samples_per_club)
         m = make_measurement(seq, club, weight_g, points)
-        events.append(CaptureStateChanged(STATION, CaptureState.CAPTURED, clock.tick()))
-        events.append(MeasurementCaptured(m))
+        events.append(_capture(CaptureState.CAPTURED, clock))
+        events.append(MeasurementCaptured(measurement=m))
         if (m.verdict is Verdict.FAIL) != out_of_spec:
             out_of_spec = not out_of_spec
             what = "out of spec" if out_of_spec else "in spec again"
             events.append(_alarm(AlarmKind.OUT_OF_SPEC, "station", out_of_spec,
                                  f"#{seq} {club} {what}", seq))
-        events.append(CaptureStateChanged(STATION, CaptureState.HOLDING, clock.tick()))
+        events.append(_capture(CaptureState.HOLDING, clock))
         if seq < clubs:
             for channel in CHANNELS:
-                events.append(LiveReading(STATION, channel, clock.tick(), 0.01, Flag.STABLE))
-            events.append(CaptureStateChanged(STATION, CaptureState.EMPTY, clock.tick()))
+                events.append(LiveReading(station=STATION, channel=channel, t_mono_s=clock.tick(),
+                                          value_g=0.01, flags=Flag.STABLE))
+            events.append(_capture(CaptureState.EMPTY, clock))
     events.append(
-        DeviceStatus(STATION, "beam", True, "/dev/heft-beam", 80.0, 0,
-                     round(support_readings_g(*list(BUILT.values())[clubs - 1])[1], 2),
-                     clock.mono_s, "LK-beam2", "1.3.0")
+        DeviceStatus(station=STATION, device="beam", connected=True, port="/dev/heft-beam",
+                     sample_rate_hz=80.0, frame_errors=0,
+                     last_value=round(support_readings_g(*list(BUILT.values())[clubs - 1])[1], 2),
+                     last_t_mono_s=clock.mono_s, model="LK-beam2", firmware="1.3.0")
     )
     return events
 
 
 def out_of_spec_event(seq: int = 99) -> MeasurementCaptured:
     """One more club, built 1.2 points heavy: the FAIL a test waits for."""
-    return MeasurementCaptured(make_measurement(seq, "7i", 430.0, 33.7))
+    return MeasurementCaptured(measurement=make_measurement(seq, "7i", 430.0, 33.7))
