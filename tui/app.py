@@ -20,7 +20,7 @@ from textual import events, on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
-from textual.reactive import reactive
+from textual.reactive import var
 from textual.widgets import Footer, Header, TabbedContent, TabPane
 
 from heft.daemon.command_api import AcknowledgeAlarm, Command, Rearm, SelectJob, Tare
@@ -82,22 +82,22 @@ class HeftDashboard(App[None]):
     ]
 
     # What the screens show, one snapshot per area; the widgets are bound to these in compose.
-    last_measurement: reactive[Measurement | None] = reactive(None, init=False)
-    measurements: reactive[tuple[Measurement, ...]] = reactive((), init=False)
-    set_data: reactive[SetData] = reactive(SetData, init=False)
-    capture: reactive[CaptureStateChanged | None] = reactive(None, init=False)
-    settling_load_g: reactive[float | None] = reactive(None, init=False)
-    channels: reactive[tuple[ChannelView, ...]] = reactive((), init=False)
-    readings_g: reactive[Mapping[str, float | None]] = reactive(dict, init=False)
-    device_readings_g: reactive[Mapping[str, float | None]] = reactive(dict, init=False)
-    devices: reactive[tuple[DeviceStatus, ...]] = reactive((), init=False)
-    unacknowledged: reactive[tuple[Alarm, ...]] = reactive((), init=False)
-    alarm_log: reactive[AlarmLog] = reactive(AlarmLog, init=False)
-    link: reactive[str] = reactive("", init=False)
+    last_measurement: var[Measurement | None] = var(None, init=False)
+    measurements: var[tuple[Measurement, ...]] = var((), init=False)
+    set_data: var[SetData] = var(SetData, init=False)
+    capture: var[CaptureStateChanged | None] = var(None, init=False)
+    settling_load_g: var[float | None] = var(None, init=False)
+    channels: var[tuple[ChannelView, ...]] = var((), init=False)
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    device_readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    devices: var[tuple[DeviceStatus, ...]] = var((), init=False)
+    unacknowledged: var[tuple[Alarm, ...]] = var((), init=False)
+    alarm_log: var[AlarmLog] = var(AlarmLog, init=False)
+    link: var[str] = var("", init=False)
     """The link to the service in words ('' in-process): in the header, and in the banner until
     the first club."""
-    station: reactive[str | None] = reactive(None, init=False)
-    several_stations: reactive[bool] = reactive(False, init=False, bindings=True)
+    station: var[str | None] = var(None, init=False)
+    several_stations: var[bool] = var(False, init=False, bindings=True)
     """More than one station has published: the footer offers the station key."""
 
     def __init__(

@@ -14,7 +14,7 @@ from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
-from textual.reactive import reactive
+from textual.reactive import var
 from textual.screen import Screen
 from textual.widgets import Button, ContentSwitcher, Footer, Input, OptionList, Static
 from textual.widgets.option_list import Option
@@ -97,7 +97,7 @@ class CalibrationScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "close", "Close calibration")]
 
-    readings_g: reactive[Mapping[str, float | None]] = reactive(dict, init=False)
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
     """The latest live value of each channel (the app sets it as readings arrive)."""
 
     def __init__(

@@ -5,7 +5,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
-from textual.reactive import reactive
+from textual.reactive import var
 from textual.widgets import Sparkline, Static
 
 from heft.drivers.reading import Flag
@@ -41,7 +41,7 @@ def _value_text(view: ChannelView) -> Text:
 class ChannelRow(Horizontal):
     """One channel: its name, its latest value and flag word, and a sparkline."""
 
-    view: reactive[ChannelView] = reactive[ChannelView](
+    view: var[ChannelView] = var[ChannelView](
         lambda: ChannelView("", None, Flag.NONE, ()), init=False
     )
 
@@ -71,14 +71,15 @@ class ChannelRow(Horizontal):
 class ChannelsPanel(Vertical):
     """All channels heard from, one row each, in the order they first reported."""
 
-    channels: reactive[tuple[ChannelView, ...]] = reactive((), init=False)
+    channels: var[tuple[ChannelView, ...]] = var((), init=False)
 
     def compose(self) -> ComposeResult:
         yield Static("no live readings yet", classes="empty-note")
 
     def watch_channels(self, views: tuple[ChannelView, ...]) -> None:
-        if views:
-            self.query(".empty-note").remove()
+        note = self.query(".empty-note")
+        if views and note:
+            note.remove()
         for view in views:
             rows = self.query(f"#{_dom_id(view.channel)}")
             if rows:

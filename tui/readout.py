@@ -6,7 +6,7 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.message import Message
-from textual.reactive import reactive
+from textual.reactive import reactive, var
 from textual.widget import Widget
 from textual.widgets import Digits, Static
 
@@ -32,8 +32,8 @@ class VerdictBanner(Static):
     Posts :class:`VerdictBanner.Changed` when it shows another measurement (the bell listens).
     """
 
-    measurement: reactive[Measurement | None] = reactive(None)
-    waiting: reactive[str] = reactive("")
+    measurement: var[Measurement | None] = var(None)
+    waiting: var[str] = var("")
     """Why there is no club yet (e.g. the broker cannot be reached); shown only until one is."""
 
     class Changed(Message):
@@ -73,7 +73,7 @@ class AlarmBanner(Static):
     Posts :class:`AlarmBanner.Raised` when an alarm joins the unacknowledged ones.
     """
 
-    alarms: reactive[tuple[Alarm, ...]] = reactive(())
+    alarms: var[tuple[Alarm, ...]] = var(())
     """The active, unacknowledged alarms, newest first."""
 
     class Raised(Message):
@@ -104,8 +104,8 @@ class AlarmBanner(Static):
 class CaptureLine(Static):
     """The capture cycle's state in words (with the load on the beam while settling)."""
 
-    capture: reactive[CaptureStateChanged | None] = reactive(None)
-    load_g: reactive[float | None] = reactive(None)
+    capture: var[CaptureStateChanged | None] = var(None)
+    load_g: var[float | None] = var(None)
 
     def watch_capture(
         self, old: CaptureStateChanged | None, new: CaptureStateChanged | None
@@ -130,7 +130,7 @@ class CaptureLine(Static):
 class Readout(Vertical):
     """Swing weight in large digits, then total weight, balance point and moment with their U."""
 
-    measurement: reactive[Measurement | None] = reactive(None)
+    measurement: var[Measurement | None] = var(None)
 
     def compose(self) -> ComposeResult:
         yield Static("SWING WEIGHT (14 in, Lorythmic)", classes="caption")
@@ -199,7 +199,7 @@ class ToleranceGauge(Widget):
     ToleranceGauge { height: 4; }
     """
 
-    measurement: reactive[Measurement | None] = reactive(None, repaint=False)
+    measurement: var[Measurement | None] = var(None)
     check: reactive[CheckResult | None] = reactive(None, layout=False)
 
     def __init__(self, check_name: str, *, id: str | None = None) -> None:

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical
-from textual.reactive import reactive
+from textual.reactive import var
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
@@ -140,7 +140,7 @@ def _point_ticks(lo: float, hi: float) -> list[float]:
 class SetView(Vertical):
     """Summary line and the two plots for the current job."""
 
-    data: reactive[SetData] = reactive(SetData, init=False)
+    data: var[SetData] = var(SetData, init=False)
 
     def compose(self) -> ComposeResult:
         yield Static("", id="set-summary")

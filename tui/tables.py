@@ -6,7 +6,7 @@ from collections.abc import Iterable, Mapping
 
 from rich.text import Text
 from textual.coordinate import Coordinate
-from textual.reactive import reactive
+from textual.reactive import var
 from textual.widgets import DataTable
 
 from heft.daemon.events import Alarm, DeviceStatus
@@ -58,8 +58,8 @@ class MeasurementsTable(_Table):
     COMPACT_COLUMNS = ("#", "club", "verdict", "swing wt", "total g", "BP in", "club id")
     LIMIT = 100  # newest rows shown
 
-    measurements: reactive[tuple[Measurement, ...]] = reactive((), init=False)
-    compact: reactive[bool] = reactive(False, init=False)
+    measurements: var[tuple[Measurement, ...]] = var((), init=False)
+    compact: var[bool] = var(False, init=False)
     """All columns, or the narrow set (the app sets it from the terminal's width)."""
 
     def shown_columns(self) -> tuple[str, ...]:
@@ -109,8 +109,8 @@ class DevicesTable(_Table):
                "model", "firmware")
     _READING = COLUMNS.index("last reading")
 
-    devices: reactive[tuple[DeviceStatus, ...]] = reactive((), init=False)
-    readings_g: reactive[Mapping[str, float | None]] = reactive(dict, init=False)
+    devices: var[tuple[DeviceStatus, ...]] = var((), init=False)
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
     """Each device's latest live value in grams, when it has a load channel."""
 
     def watch_devices(self, devices: tuple[DeviceStatus, ...]) -> None:
@@ -133,8 +133,16 @@ class DevicesTable(_Table):
             for d in sorted(devices, key=lambda d: d.device)
         )
 
-    def watch_readings_g(self, grams: Mapping[str, float | None]) -> None:
+    def watch_readings_g(self) -> None:
+        if self.is_on_screen:  # on another tab: brought up to date when shown (on_show)
+            self._show_readings()
+
+    def on_show(self) -> None:
+        self._show_readings()
+
+    def _show_readings(self) -> None:
         """Live values move many times a second: only the cells whose text changed are redrawn."""
+        grams = self.readings_g
         column = self.ordered_columns[self._READING].key
         for d in self.devices:
             text = last_reading_text(d.last_value, grams.get(d.device))
@@ -147,7 +155,7 @@ class AlarmsTable(_Table):
 
     COLUMNS = ("time UTC", "state", "kind", "source", "message")
 
-    alarm_log: reactive[AlarmLog] = reactive(AlarmLog, init=False)
+    alarm_log: var[AlarmLog] = var(AlarmLog, init=False)
 
     def watch_alarm_log(self, log: AlarmLog) -> None:
         active = log.active
