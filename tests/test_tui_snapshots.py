@@ -44,8 +44,7 @@ async def _replayed(pilot: Pilot[Any]) -> None:
         if len(app.state.measurements) == 7 and app.source.inbox.empty():
             break
         await pilot.pause(0.05)
-    for _ in range(100):  # rows mounted by one pass are filled by a later one
-        app.refresh_views()
+    for _ in range(100):  # the channel rows are mounted as the readings arrive
         await pilot.pause(0.02)
         rows = app.query(".channel-value")
         if rows and all(str(r.render()).strip() != "-" for r in rows):

@@ -10,8 +10,13 @@ from heft.tui.format import alarm_banner_text, capture_text, verdict_banner, wit
 from heft.tui.readout import gauge_text
 from heft.tui.scripted_bench import JOB, STATION, out_of_spec_event, session_events
 from heft.tui.set_view import latest_per_club, points_for
-from heft.tui.state import DashboardState, club_order_key
+from heft.tui.state import Area, DashboardState, club_order_key
 from heft.tui.tables import last_reading_text
+
+
+def live(channel: str, value_g: float, *, station: str = STATION) -> LiveReading:
+    return LiveReading(station=station, channel=channel, t_mono_s=1.0, value_g=value_g,
+                       flags=Flag.NONE)
 
 
 def test_session_folds_into_state() -> None:
@@ -31,14 +36,8 @@ def test_session_folds_into_state() -> None:
 
 def test_other_stations_are_listed_not_shown() -> None:
     state = DashboardState("qc-1")
-    state.apply(LiveReading(
-        station="bench-1", channel="beam/0", t_mono_s=1.0,
-        value_g=12.0, flags=Flag.NONE,
-    ))
-    state.apply(LiveReading(
-        station="qc-1", channel="scale/0", t_mono_s=1.0,
-        value_g=400.0, flags=Flag.STABLE,
-    ))
+    state.apply(live("beam/0", 12.0, station="bench-1"))
+    state.apply(live("scale/0", 400.0, station="qc-1"))
     assert state.stations == ["bench-1", "qc-1"]
     assert list(state.channels) == ["scale/0"]
     state.switch_station("bench-1")
@@ -111,24 +110,16 @@ def test_set_points_keep_the_latest_of_each_club() -> None:
 
 
 def test_settling_shows_the_load_now_not_the_load_at_detection() -> None:
-    settling = CaptureStateChanged(
-        station=STATION, state=CaptureState.SETTLING, t_mono_s=1.0, detail="load 33.0 g"
-    )
+    settling = CaptureStateChanged(station=STATION, state=CaptureState.SETTLING, t_mono_s=1.0,
+                                   detail="load 33.0 g")
     assert capture_text(settling, 392.04) == "SETTLING - hands off (load 392.0 g)"
     assert capture_text(settling, None) == "SETTLING - hands off"
-    holding = CaptureStateChanged(
-        station=STATION, state=CaptureState.HOLDING, t_mono_s=2.0, detail="not a club: too light"
-    )
+    holding = CaptureStateChanged(station=STATION, state=CaptureState.HOLDING, t_mono_s=2.0,
+                                  detail="not a club: too light")
     assert capture_text(holding, 5.0).endswith("(not a club: too light)")
     state = DashboardState()
-    state.apply(LiveReading(
-        station=STATION, channel="beam/0", t_mono_s=1.0,
-        value_g=120.5, flags=Flag.NONE,
-    ))
-    state.apply(LiveReading(
-        station=STATION, channel="beam/1", t_mono_s=1.0,
-        value_g=271.5, flags=Flag.NONE,
-    ))
+    state.apply(live("beam/0", 120.5))
+    state.apply(live("beam/1", 271.5))
     assert state.load_g() == 392.0
     assert state.device_reading_g("beam") == 120.5
     assert state.device_reading_g("scan") is None
@@ -153,3 +144,16 @@ def test_read_only_alarm_banner_does_not_offer_acknowledge() -> None:
     text = alarm_banner_text(state.unacknowledged(), can_acknowledge=False)
     assert text.startswith("ALARM 1 of 2 (read-only)")
     assert "acknowledge" not in text
+
+
+def test_apply_names_the_areas_an_event_changed() -> None:
+    events = session_events()
+    state = DashboardState()
+    assert state.apply(events[0]) == {Area.STATIONS, Area.DEVICES}  # the first station heard
+    assert state.apply(live("beam/0", 12.0)) == {Area.LIVE}
+    assert state.apply(live("scale/0", 1.0, station="qc-1")) == {Area.STATIONS}  # only listed
+    assert state.apply(live("scale/0", 2.0, station="qc-1")) == set()
+    captured = out_of_spec_event()
+    assert state.apply(captured) == {Area.MEASUREMENTS}
+    assert state.apply(captured) == set()  # the same id again changes nothing
+    assert state.apply_all(events[2:5]) == {Area.ALARMS, Area.CAPTURE}

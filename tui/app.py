@@ -1,41 +1,53 @@
 """The heft dashboard: a Textual app fed by an EventSource.
 
-Events are folded into :class:`tui.state.DashboardState` as they arrive (a worker awaiting the
-source); the screen is redrawn from that state on a timer (10 Hz by default), and only the parts
-whose revision moved. Commands go out through the source in workers, so nothing here blocks the
-event loop.
+A worker awaits the source and folds each batch of events into
+:class:`heft.tui.state.DashboardState`, then posts :class:`heft.tui.messages.StateChanged` naming
+the areas the batch touched. Its handler copies fresh snapshots of those areas into the app's
+reactive attributes; widgets are bound to them (``data_bind``) and redraw in their watchers, only
+when a value really changed. Nothing polls: no change, no redraw. Commands go out through the
+source in workers, so nothing here blocks the event loop.
 """
 
 from __future__ import annotations
 
 import logging
 import time
+from collections.abc import Mapping
 from pathlib import Path
 from typing import ClassVar
 
-from textual import events, work
+from textual import events, on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
+from textual.reactive import var
 from textual.widgets import Footer, Header, TabbedContent, TabPane
 
 from heft.daemon.command_api import AcknowledgeAlarm, Command, Rearm, SelectJob, Tare
-from heft.daemon.events import CaptureState
-from heft.daemon.measurement import Verdict
+from heft.daemon.events import Alarm, CaptureStateChanged, DeviceStatus
+from heft.daemon.measurement import Measurement, Verdict
 from heft.tui.calibration import CalibrationScreen
 from heft.tui.channels import ChannelsPanel
 from heft.tui.format import READ_ONLY_HINT
 from heft.tui.help import HelpScreen
+from heft.tui.messages import StateChanged
 from heft.tui.pickers import JobPicker, StationPicker
 from heft.tui.readout import AlarmBanner, CaptureLine, Readout, ToleranceGauge, VerdictBanner
 from heft.tui.set_view import SetView
 from heft.tui.source import EventSource
-from heft.tui.state import DashboardState
+from heft.tui.state import (
+    ALL_AREAS,
+    AlarmLog,
+    Area,
+    ChannelView,
+    DashboardState,
+    SetData,
+)
 from heft.tui.tables import AlarmsTable, DevicesTable, MeasurementsTable
 
 log = logging.getLogger(__name__)
 
-REFRESH_HZ = 10.0
+LINK_CLOCK_S = 1.0  # the reconnect countdown ("retrying in N s") counts whole seconds
 SHORT_ROWS = 32  # fewer rows than this: one-line verdict, fewer gauges, one plot on Set
 NARROW_COLS = 100  # fewer columns: narrower readout, fewer table columns
 BACKFILL = 100
@@ -69,48 +81,73 @@ class HeftDashboard(App[None]):
         Binding("q", "quit", "Quit"),
     ]
 
+    # What the screens show, one snapshot per area; the widgets are bound to these in compose.
+    last_measurement: var[Measurement | None] = var(None, init=False)
+    measurements: var[tuple[Measurement, ...]] = var((), init=False)
+    set_data: var[SetData] = var(SetData, init=False)
+    capture: var[CaptureStateChanged | None] = var(None, init=False)
+    settling_load_g: var[float | None] = var(None, init=False)
+    channels: var[tuple[ChannelView, ...]] = var((), init=False)
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    device_readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    devices: var[tuple[DeviceStatus, ...]] = var((), init=False)
+    unacknowledged: var[tuple[Alarm, ...]] = var((), init=False)
+    alarm_log: var[AlarmLog] = var(AlarmLog, init=False)
+    link: var[str] = var("", init=False)
+    """The link to the service in words ('' in-process): in the header, and in the banner until
+    the first club."""
+    station: var[str | None] = var(None, init=False)
+    several_stations: var[bool] = var(False, init=False, bindings=True)
+    """More than one station has published: the footer offers the station key."""
+
     def __init__(
         self,
         source: EventSource,
         *,
         station: str | None = None,
         bell: bool = False,
-        refresh_hz: float = REFRESH_HZ,
     ) -> None:
         super().__init__()
         self.source = source
         self.state = DashboardState(station)
+        self.set_reactive(HeftDashboard.station, station)
         self.bell_enabled = bell
-        self.refresh_hz = refresh_hz
         self.ui_errors = 0
-        self.refreshes = 0
-        self._drawn: dict[str, int] = {}
-        self._last_verdict_id: str | None = None
-        self._alarm_keys_rung: set[str] = set()
 
     # -- layout ---------------------------------------------------------------------------
 
     def compose(self) -> ComposeResult:
+        app = HeftDashboard
         yield Header(show_clock=False, icon="≡")
-        yield VerdictBanner("", id="verdict")
-        yield AlarmBanner("", id="alarm-banner")
+        yield VerdictBanner("", id="verdict").data_bind(
+            measurement=app.last_measurement, waiting=app.link
+        )
+        yield AlarmBanner(can_acknowledge=self.source.commands_enabled, id="alarm-banner"
+                          ).data_bind(alarms=app.unacknowledged)
         with TabbedContent(initial="live", id="tabs"):
             with TabPane("1 Live", id="live"):
                 with Horizontal(id="live-top"):
-                    yield Readout(id="readout")
+                    yield Readout(id="readout").data_bind(measurement=app.last_measurement)
                     with Vertical(id="live-side"):
-                        yield CaptureLine("", id="capture")
-                        yield ToleranceGauge("swingweight", id="gauge-sw")
-                        yield ToleranceGauge("total_weight", id="gauge-weight")
-                        yield ToleranceGauge("balance_point", id="gauge-bp")
-                        yield ChannelsPanel(id="channels")
-                yield MeasurementsTable(id="measurements")
+                        yield CaptureLine("", id="capture").data_bind(
+                            app.capture, load_g=app.settling_load_g
+                        )
+                        for check, gauge_id in (("swingweight", "gauge-sw"),
+                                                ("total_weight", "gauge-weight"),
+                                                ("balance_point", "gauge-bp")):
+                            yield ToleranceGauge(check, id=gauge_id).data_bind(
+                                measurement=app.last_measurement
+                            )
+                        yield ChannelsPanel(id="channels").data_bind(app.channels)
+                yield MeasurementsTable(id="measurements").data_bind(app.measurements)
             with TabPane("2 Set", id="set"):
-                yield SetView(id="set-view")
+                yield SetView(id="set-view").data_bind(data=app.set_data)
             with TabPane("3 Devices", id="devices"):
-                yield DevicesTable(id="devices-table")
+                yield DevicesTable(id="devices-table").data_bind(
+                    app.devices, readings_g=app.device_readings_g
+                )
             with TabPane("4 Alarms", id="alarms"):
-                yield AlarmsTable(id="alarms-table")
+                yield AlarmsTable(id="alarms-table").data_bind(app.alarm_log)
         yield Footer()
 
     def on_resize(self, event: events.Resize) -> None:
@@ -121,7 +158,7 @@ class HeftDashboard(App[None]):
         self.set_class(height < SHORT_ROWS, "short")
         self.set_class(width < NARROW_COLS, "narrow")
         self.title = "heft" if width < NARROW_COLS else self.TITLE
-        self.query_one(MeasurementsTable).set_compact(width < NARROW_COLS)
+        self.query_one(MeasurementsTable).compact = width < NARROW_COLS
 
     async def on_mount(self) -> None:
         self._fit(self.size.width, self.size.height)
@@ -129,17 +166,28 @@ class HeftDashboard(App[None]):
         await self.source.start()
         self._consume()
         self._backfill()
-        self.set_interval(1.0 / self.refresh_hz, self.refresh_views)
-        self.refresh_views()
+        if self.source.connection_text(time.monotonic()):
+            # A link that can be lost: its text counts down to the next reconnect attempt,
+            # so it is a clock, read once a second (the reactive redraws only what changed).
+            self._tick_link()
+            self.set_interval(LINK_CLOCK_S, self._tick_link)
 
     async def on_unmount(self) -> None:
         await self.source.stop()
 
+    def _tick_link(self) -> None:
+        self.link = self.source.connection_text(time.monotonic())
+
+    def watch_link(self) -> None:
+        self._set_subtitle()
+
+    def watch_station(self) -> None:
+        self._set_subtitle()
+
     def _set_subtitle(self) -> None:
         ro = "" if self.source.commands_enabled else "  (read-only)"
-        station = self.state.station or "waiting for a station"
-        link = self.source.connection_text(time.monotonic()) or self.source.label
-        self.sub_title = f"{station} · {link}{ro}"
+        station = self.station or "waiting for a station"
+        self.sub_title = f"{station} · {self.link or self.source.label}{ro}"
 
     # -- events in ------------------------------------------------------------------------
 
@@ -147,12 +195,15 @@ class HeftDashboard(App[None]):
     async def _consume(self) -> None:
         while True:
             batch = await self.source.next_batch()
+            changed: set[Area] = set()
             for event in batch:
                 try:
-                    self.state.apply(event)
+                    changed |= self.state.apply(event)
                 except Exception:  # one bad event must not end the dashboard
                     self.ui_errors += 1
                     log.exception("event not shown: %r", event)
+            if changed:
+                self.post_message(StateChanged(changed))
 
     @work(exclusive=True, group="backfill")
     async def _backfill(self) -> None:
@@ -165,77 +216,56 @@ class HeftDashboard(App[None]):
             if self.state.station is None or m.station == self.state.station:
                 self.state.add_measurement(m)
         self.state.sort_measurements()
+        self.post_message(StateChanged({Area.MEASUREMENTS}))
 
-    # -- redraw ---------------------------------------------------------------------------
+    # -- state out, to the reactives ------------------------------------------------------
 
-    def _moved(self, area: str, revision: int) -> bool:
-        if self._drawn.get(area) == revision:
-            return False
-        self._drawn[area] = revision
-        return True
-
-    def refresh_views(self) -> None:
-        """Redraw whatever changed since the last call (the timer calls this at refresh_hz)."""
-        self.refreshes += 1
+    @on(StateChanged)
+    def _show(self, message: StateChanged) -> None:
         try:
-            self._refresh_views()
+            self._publish(message.areas)
         except Exception:  # a drawing bug shows up in the log, the dashboard keeps going
             self.ui_errors += 1
-            log.exception("refresh failed")
+            log.exception("redraw failed")
 
-    def _refresh_views(self) -> None:
-        s, rev = self.state, self.state.rev
-        self._set_subtitle()  # cheap; Textual redraws the header only when the text changed
-        if self._moved("measurements", rev.measurements):
-            last = s.last_measurement
-            self.query_one(VerdictBanner).show(last)
-            self._drawn.pop("waiting", None)
-            self.query_one(Readout).show(last)
-            for gauge in self.query(ToleranceGauge):
-                gauge.show(last)
-            self.query_one(MeasurementsTable).show(s.measurements)
-            self._drawn.pop("set", None)
-            self._ring_for_fail()
-        if s.last_measurement is None:  # the banner says why nothing is shown yet
-            link = self.source.connection_text(time.monotonic())
-            if link and self._moved("waiting", hash(link)):
-                self.query_one(VerdictBanner).show(None, waiting=link)
-        settling = s.capture_state is CaptureState.SETTLING
-        if self._moved("capture", hash((rev.capture, rev.live if settling else 0))):
-            self.query_one(CaptureLine).show(s.capture, s.load_g())
-        if self._moved("live", rev.live):
-            if self.query_one(ChannelsPanel).show(s.channels):
-                self._drawn.pop("live", None)
-            if isinstance(self.screen, CalibrationScreen):
-                self.screen.refresh_live()
-        if self._moved("alarms", rev.alarms):
-            self.query_one(AlarmBanner).show(
-                s.unacknowledged(), can_acknowledge=self.source.commands_enabled
-            )
-            self.query_one(AlarmsTable).show(s.alarm_history, s.alarms)
-            self._ring_for_alarms()
-        tabs = self.query_one(TabbedContent)
-        # Last readings in grams come from the live traces: on its tab, once a second.
-        tick = int(time.monotonic()) if tabs.active == "devices" else 0
-        if self._moved("devices", hash((rev.devices, tick))):
-            self.query_one(DevicesTable).show(s.devices.values(), s.device_reading_g)
-        if tabs.active == "set" and self._moved("set", rev.measurements):
-            job = s.current_job()
-            self.query_one(SetView).show(job, s.job_measurements(job))
+    def _publish(self, areas: frozenset[Area]) -> None:
+        """Copy the state of ``areas`` into the reactives; unchanged values redraw nothing."""
+        s = self.state
+        if Area.STATIONS in areas:
+            self.station = s.station
+            self.several_stations = len(s.stations) > 1
+        if Area.MEASUREMENTS in areas:
+            self.measurements = tuple(s.measurements)
+            self.last_measurement = s.last_measurement
+        if areas & {Area.MEASUREMENTS, Area.JOB}:
+            self.set_data = s.set_data()
+        if Area.CAPTURE in areas:
+            self.capture = s.capture
+        if areas & {Area.CAPTURE, Area.LIVE}:
+            self.settling_load_g = s.settling_load_g()
+        if Area.LIVE in areas:
+            self.channels = s.channel_views()
+            self.readings_g = {c: t.last_value_g for c, t in s.channels.items()}
+        if areas & {Area.DEVICES, Area.LIVE}:
+            self.devices = tuple(s.devices.values())
+            self.device_readings_g = s.device_readings_g()
+        if Area.ALARMS in areas:
+            self.unacknowledged = tuple(s.unacknowledged())
+            self.alarm_log = s.alarm_log()
 
-    def _ring_for_fail(self) -> None:
-        last = self.state.last_measurement
-        if last is None or str(last.id) == self._last_verdict_id:
-            return
-        self._last_verdict_id = str(last.id)
-        if last.verdict is Verdict.FAIL and self.bell_enabled:
+    def watch_readings_g(self, readings_g: Mapping[str, float | None]) -> None:
+        for screen in self.screen_stack:
+            if isinstance(screen, CalibrationScreen):
+                screen.readings_g = readings_g
+
+    @on(VerdictBanner.Changed)
+    def _ring_for_fail(self, message: VerdictBanner.Changed) -> None:
+        if message.measurement.verdict is Verdict.FAIL and self.bell_enabled:
             self.bell()
 
-    def _ring_for_alarms(self) -> None:
-        keys = {a.key for a in self.state.unacknowledged()}
-        new = keys - self._alarm_keys_rung
-        self._alarm_keys_rung = keys
-        if new and self.bell_enabled:
+    @on(AlarmBanner.Raised)
+    def _ring_for_alarms(self, message: AlarmBanner.Raised) -> None:
+        if self.bell_enabled:
             self.bell()
 
     # -- actions --------------------------------------------------------------------------
@@ -250,7 +280,7 @@ class HeftDashboard(App[None]):
         if action in COMMAND_ACTIONS and not self.source.commands_enabled:
             return None
         # The station key is hidden until a second station publishes (room in the footer).
-        return not (action == "station" and len(self.state.stations) < 2)
+        return not (action == "station" and not self.several_stations)
 
     def on_key(self, event: events.Key) -> None:
         """A command key on a read-only dashboard says why nothing happens."""
@@ -266,7 +296,6 @@ class HeftDashboard(App[None]):
         focus = {"live": MeasurementsTable, "devices": DevicesTable, "alarms": AlarmsTable}
         if tab in focus:
             self.query_one(focus[tab]).focus()
-        self.refresh_views()
         if tab == "alarms":  # `a` then acknowledges what is still active
             self.query_one(AlarmsTable).select_newest_active(self.state.alarms)
 
@@ -278,7 +307,7 @@ class HeftDashboard(App[None]):
         self.notify(f"{cmd.command}: {text}", severity="information" if reply.ok else "error")
         if reply.ok and isinstance(cmd, SelectJob):
             self.state.selected_job = cmd.job
-            self._drawn.pop("set", None)
+            self.post_message(StateChanged({Area.JOB}))
 
     def action_acknowledge(self) -> None:
         key: str | None = None
@@ -310,15 +339,11 @@ class HeftDashboard(App[None]):
             self.notify("no channels have reported yet", severity="warning")
             return
 
-        def live_value(channel: str) -> float | None:
-            trace = self.state.channels.get(channel)
-            return None if trace is None else trace.last_value_g
-
         def closed(_: None) -> None:
             self.source.calibrating(False)
 
         note = self.source.calibrating(True)
-        screen = CalibrationScreen(channels, self.source.send, live_value, note=note)
+        screen = CalibrationScreen(channels, self.source.send, self.readings_g, note=note)
         self.push_screen(screen, closed)
 
     def action_rearm(self) -> None:
@@ -332,8 +357,7 @@ class HeftDashboard(App[None]):
             if station and station != self.state.station:
                 self.state.switch_station(station)
                 self.source.select_station(station)
-                self._drawn.clear()
-                self.refresh_views()
+                self.post_message(StateChanged(ALL_AREAS))
 
         self.push_screen(StationPicker(list(self.state.stations), self.state.station), chosen)
 

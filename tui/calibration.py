@@ -6,7 +6,7 @@ service accepts it; a refusal stays on the step with the service's message.
 
 from __future__ import annotations
 
-from collections.abc import Awaitable, Callable
+from collections.abc import Awaitable, Callable, Mapping
 from typing import Any, ClassVar
 
 from rich.text import Text
@@ -14,6 +14,7 @@ from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
+from textual.reactive import var
 from textual.screen import Screen
 from textual.widgets import Button, ContentSwitcher, Footer, Input, OptionList, Static
 from textual.widgets.option_list import Option
@@ -42,7 +43,6 @@ RESULT_FIELDS = (
 )
 
 SendCommand = Callable[[Command], Awaitable[Reply]]
-LiveValue = Callable[[str], float | None]
 
 
 ZERO_LOAD_WARN_G = 10.0  # more than this on a channel to be zeroed: something is on it
@@ -97,14 +97,22 @@ class CalibrationScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "close", "Close calibration")]
 
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    """The latest live value of each channel (the app sets it as readings arrive)."""
+
     def __init__(
-        self, channels: list[str], send: SendCommand, live_value: LiveValue, *, note: str = ""
+        self,
+        channels: list[str],
+        send: SendCommand,
+        readings_g: Mapping[str, float | None],
+        *,
+        note: str = "",
     ) -> None:
         super().__init__()
+        self.set_reactive(CalibrationScreen.readings_g, readings_g)
         self.note = note
         self.channels = channels
         self.send = send
-        self.live_value = live_value
         self.channel: str | None = None
         self.results: list[str] = []
         self.busy = False
@@ -163,13 +171,13 @@ class CalibrationScreen(Screen[None]):
             "step-result": "#do-done",
         }[step]
         self.query_one(focus).focus()
-        self.refresh_live()
+        self.watch_readings_g()
 
-    def refresh_live(self) -> None:
-        """Called by the app's refresh timer: the channel's current reading."""
-        if self.channel is None:
+    def watch_readings_g(self) -> None:
+        """The chosen channel's current reading (and, on the zero step, whether a load is on it)."""
+        if self.channel is None or not self.is_mounted:
             return
-        value = self.live_value(self.channel)
+        value = self.readings_g.get(self.channel)
         self.query_one("#cal-live", Static).update(live_text(self.channel, value, self.step))
 
     def _message(self, text: str, error: bool = False) -> None:

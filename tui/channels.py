@@ -5,10 +5,11 @@ from __future__ import annotations
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
+from textual.reactive import var
 from textual.widgets import Sparkline, Static
 
 from heft.drivers.reading import Flag
-from heft.tui.state import ChannelTrace
+from heft.tui.state import ChannelView
 
 # Words for flags that matter on a bench; the first one present is shown.
 _FLAG_WORDS: tuple[tuple[Flag, str], ...] = (
@@ -18,6 +19,7 @@ _FLAG_WORDS: tuple[tuple[Flag, str], ...] = (
     (Flag.MOTION, "motion"),
     (Flag.STABLE, "stable"),
 )
+_BAD_WORDS = ("OVERLOAD", "UNDERLOAD", "FAULT")
 
 
 def flag_word(flags: Flag) -> str:
@@ -31,48 +33,56 @@ def _dom_id(channel: str) -> str:
     return "ch-" + "".join(c if c.isalnum() else "-" for c in channel)
 
 
+def _value_text(view: ChannelView) -> Text:
+    value = "-" if view.last_value_g is None else f"{view.last_value_g:9.2f} g"
+    return Text(f"{value} {flag_word(view.flags)}")
+
+
 class ChannelRow(Horizontal):
     """One channel: its name, its latest value and flag word, and a sparkline."""
 
-    def __init__(self, channel: str) -> None:
-        super().__init__(id=_dom_id(channel), classes="channel-row")
-        self.channel = channel
+    view: var[ChannelView] = var[ChannelView](
+        lambda: ChannelView("", None, Flag.NONE, ()), init=False
+    )
+
+    def __init__(self, view: ChannelView) -> None:
+        super().__init__(id=_dom_id(view.channel), classes="channel-row")
+        self.channel = view.channel
+        self.set_reactive(ChannelRow.view, view)  # compose draws it; no watcher before that
 
     def compose(self) -> ComposeResult:
+        view = self.view
         yield Static(self.channel, classes="channel-name")
-        yield Static("-", classes="channel-value")
-        yield Sparkline([], summary_function=max, classes="channel-spark")
+        yield Static(_value_text(view), classes="channel-value").set_class(
+            flag_word(view.flags) in _BAD_WORDS, "bad"
+        )
+        yield Sparkline(view.values_g, summary_function=max, classes="channel-spark")
 
-    def show(self, trace: ChannelTrace) -> bool:
-        """Show the trace; False while the row's own widgets are still being mounted."""
-        if not self.query(".channel-value"):
-            return False
-        value = "-" if trace.last_value_g is None else f"{trace.last_value_g:9.2f} g"
-        word = flag_word(trace.flags)
-        cell = self.query_one(".channel-value", Static)
-        cell.update(Text(f"{value} {word}"))
-        cell.set_class(word in ("OVERLOAD", "UNDERLOAD", "FAULT"), "bad")
-        self.query_one(Sparkline).data = list(trace.values_g)
-        return True
+    def watch_view(self, view: ChannelView) -> None:
+        cells = self.query(".channel-value")
+        if not cells:  # not composed yet: compose reads the newest view itself
+            return
+        cell = cells.first(Static)
+        cell.update(_value_text(view))
+        cell.set_class(flag_word(view.flags) in _BAD_WORDS, "bad")
+        self.query_one(Sparkline).data = view.values_g
 
 
 class ChannelsPanel(Vertical):
     """All channels heard from, one row each, in the order they first reported."""
 
+    channels: var[tuple[ChannelView, ...]] = var((), init=False)
+
     def compose(self) -> ComposeResult:
         yield Static("no live readings yet", classes="empty-note")
 
-    def show(self, traces: dict[str, ChannelTrace]) -> bool:
-        """Update the rows; True when a row is not filled yet (it fills on a later call)."""
-        added = False
+    def watch_channels(self, views: tuple[ChannelView, ...]) -> None:
         note = self.query(".empty-note")
-        if traces and note:
+        if views and note:
             note.remove()
-        for channel, trace in traces.items():
-            rows = self.query(f"#{_dom_id(channel)}")
+        for view in views:
+            rows = self.query(f"#{_dom_id(view.channel)}")
             if rows:
-                added |= not rows.first(ChannelRow).show(trace)
+                rows.first(ChannelRow).view = view
             else:
-                self.mount(ChannelRow(channel))  # filled on the next refresh, once composed
-                added = True
-        return added
+                self.mount(ChannelRow(view))

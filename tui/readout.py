@@ -5,11 +5,12 @@ from __future__ import annotations
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
-from textual.reactive import reactive
+from textual.message import Message
+from textual.reactive import reactive, var
 from textual.widget import Widget
 from textual.widgets import Digits, Static
 
-from heft.daemon.events import Alarm, CaptureState, CaptureStateChanged
+from heft.daemon.events import Alarm, CaptureStateChanged
 from heft.daemon.measurement import CheckResult, Measurement, Verdict
 from heft.tui.format import (
     CHECK_NAMES,
@@ -26,11 +27,38 @@ _BANNER_CLASSES = ("pass", "near", "fail", "nospec", "idle")
 
 
 class VerdictBanner(Static):
-    """Full-width verdict: the word (PASS / NEAR LIMIT / FAIL / NO SPEC) and why."""
+    """Full-width verdict: the word (PASS / NEAR LIMIT / FAIL / NO SPEC) and why.
 
-    def show(self, m: Measurement | None, *, waiting: str = "") -> None:
-        """``waiting``: why there is no club yet (e.g. the broker cannot be reached)."""
-        banner = verdict_banner(m, waiting=waiting)
+    Posts :class:`VerdictBanner.Changed` when it shows another measurement (the bell listens).
+    """
+
+    measurement: var[Measurement | None] = var(None)
+    waiting: var[str] = var("")
+    """Why there is no club yet (e.g. the broker cannot be reached); shown only until one is."""
+
+    class Changed(Message):
+        """The banner shows a new measurement."""
+
+        def __init__(self, banner: VerdictBanner, measurement: Measurement) -> None:
+            super().__init__()
+            self.banner = banner
+            self.measurement = measurement
+
+        @property
+        def control(self) -> VerdictBanner:
+            return self.banner
+
+    def watch_measurement(self, old: Measurement | None, new: Measurement | None) -> None:
+        self._draw()
+        if new is not None and (old is None or old.id != new.id):
+            self.post_message(self.Changed(self, new))
+
+    def watch_waiting(self) -> None:
+        if self.measurement is None:
+            self._draw()
+
+    def _draw(self) -> None:
+        banner = verdict_banner(self.measurement, waiting=self.waiting)
         self.remove_class(*_BANNER_CLASSES)
         self.add_class(banner.css_class)
         text = Text()
@@ -40,28 +68,69 @@ class VerdictBanner(Static):
 
 
 class AlarmBanner(Static):
-    """Shown only while an alarm is active and unacknowledged; says so in words."""
+    """Shown only while an alarm is active and unacknowledged; says so in words.
 
-    def show(self, unacknowledged: list[Alarm], *, can_acknowledge: bool = True) -> None:
-        message = alarm_banner_text(unacknowledged, can_acknowledge=can_acknowledge)
+    Posts :class:`AlarmBanner.Raised` when an alarm joins the unacknowledged ones.
+    """
+
+    alarms: var[tuple[Alarm, ...]] = var(())
+    """The active, unacknowledged alarms, newest first."""
+
+    class Raised(Message):
+        """Alarms that were not in the banner before."""
+
+        def __init__(self, banner: AlarmBanner, keys: frozenset[str]) -> None:
+            super().__init__()
+            self.banner = banner
+            self.keys = keys
+
+        @property
+        def control(self) -> AlarmBanner:
+            return self.banner
+
+    def __init__(self, *, can_acknowledge: bool = True, id: str | None = None) -> None:
+        super().__init__("", id=id)
+        self.can_acknowledge = can_acknowledge
+
+    def watch_alarms(self, old: tuple[Alarm, ...], new: tuple[Alarm, ...]) -> None:
+        message = alarm_banner_text(list(new), can_acknowledge=self.can_acknowledge)
         self.display = bool(message)
         self.update(Text(message))
+        raised = frozenset(a.key for a in new) - {a.key for a in old}
+        if raised:
+            self.post_message(self.Raised(self, raised))
 
 
 class CaptureLine(Static):
-    """The capture cycle's state in words."""
+    """The capture cycle's state in words (with the load on the beam while settling)."""
 
-    def show(self, capture: CaptureStateChanged | None, load_g: float | None = None) -> None:
-        self.remove_class(*(s.value for s in CaptureState))
-        if capture is None:
-            self.update("capture: no state yet")
-            return
-        self.add_class(capture.state.value)
-        self.update(Text(f"capture: {capture_text(capture, load_g)}"))
+    capture: var[CaptureStateChanged | None] = var(None)
+    load_g: var[float | None] = var(None)
+
+    def watch_capture(
+        self, old: CaptureStateChanged | None, new: CaptureStateChanged | None
+    ) -> None:
+        if old is not None:
+            self.remove_class(old.state.value)
+        if new is not None:
+            self.add_class(new.state.value)
+        self._draw()
+
+    def watch_load_g(self) -> None:
+        self._draw()
+
+    def _draw(self) -> None:
+        capture = self.capture
+        text = "capture: no state yet" if capture is None else (
+            f"capture: {capture_text(capture, self.load_g)}")
+        if text != str(self.content):  # a load that moved below 0.1 g changes nothing here
+            self.update(Text(text))
 
 
 class Readout(Vertical):
     """Swing weight in large digits, then total weight, balance point and moment with their U."""
+
+    measurement: var[Measurement | None] = var(None)
 
     def compose(self) -> ComposeResult:
         yield Static("SWING WEIGHT (14 in, Lorythmic)", classes="caption")
@@ -73,7 +142,8 @@ class Readout(Vertical):
         yield Static("", id="numbers-oz")
         yield Static("", id="club-line")
 
-    def show(self, m: Measurement | None) -> None:
+    def watch_measurement(self, m: Measurement | None) -> None:
+        # The first call comes once the children are composed (the reactive's initial watch).
         digits = self.query_one("#sw-digits", Digits)
         letter = self.query_one("#sw-letter", Static)
         if m is None:
@@ -129,13 +199,15 @@ class ToleranceGauge(Widget):
     ToleranceGauge { height: 4; }
     """
 
+    measurement: var[Measurement | None] = var(None)
     check: reactive[CheckResult | None] = reactive(None, layout=False)
 
     def __init__(self, check_name: str, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self.check_name = check_name
 
-    def show(self, m: Measurement | None) -> None:
+    def watch_measurement(self, m: Measurement | None) -> None:
+        # Repaints only when this gauge's own check changed, not on every measurement.
         self.check = find_check(m, self.check_name) if m is not None else None
 
     def render(self) -> Text:

@@ -150,13 +150,17 @@ def _alarm(kind: AlarmKind, source: str, active: bool, message: str, seq: int) -
                                     message=message, time_utc=when))
 
 
+def _capture(state: CaptureState, clock: _Clock) -> CaptureStateChanged:
+    return CaptureStateChanged(station=STATION, state=state, t_mono_s=clock.tick())
+
+
 def session_events(clubs: int = len(BUILT), samples_per_club: int = 24) -> list[Event]:
     """The whole session: devices come up, ``clubs`` clubs are placed, judged and lifted."""
     rng = random.Random(2417)
     clock = _Clock()
     events: list[Event] = [
         DeviceStatus(station=STATION, device="beam", connected=True, port="/dev/heft-beam",
-                     sample_rate_hz=80.0, model="LK-beam2", firmware="1.3.0"),
+                     sample_rate_hz=80.0, frame_errors=0, model="LK-beam2", firmware="1.3.0"),
         DeviceStatus(station=STATION, device="scan", connected=False, port="/dev/heft-scan",
                      frame_errors=3, model="hand scanner"),
         _alarm(AlarmKind.DEVICE_OFFLINE, "scan", True,
@@ -168,29 +172,25 @@ def session_events(clubs: int = len(BUILT), samples_per_club: int = 24) -> list[
     out_of_spec = False
     for seq, (club, (weight_g, points)) in enumerate(list(BUILT.items())[:clubs], start=1):
         butt_g, head_g = support_readings_g(weight_g, points)
-        events.append(CaptureStateChanged(station=STATION, state=CaptureState.SETTLING,
-                                           t_mono_s=clock.tick()))
+        events.append(_capture(CaptureState.SETTLING, clock))
         events += _placement(clock, rng, butt_g, head_g, samples_per_club)
         m = make_measurement(seq, club, weight_g, points)
-        events.append(CaptureStateChanged(station=STATION, state=CaptureState.CAPTURED,
-                                           t_mono_s=clock.tick()))
+        events.append(_capture(CaptureState.CAPTURED, clock))
         events.append(MeasurementCaptured(measurement=m))
         if (m.verdict is Verdict.FAIL) != out_of_spec:
             out_of_spec = not out_of_spec
             what = "out of spec" if out_of_spec else "in spec again"
             events.append(_alarm(AlarmKind.OUT_OF_SPEC, "station", out_of_spec,
                                  f"#{seq} {club} {what}", seq))
-        events.append(CaptureStateChanged(station=STATION, state=CaptureState.HOLDING,
-                                           t_mono_s=clock.tick()))
+        events.append(_capture(CaptureState.HOLDING, clock))
         if seq < clubs:
             for channel in CHANNELS:
                 events.append(LiveReading(station=STATION, channel=channel, t_mono_s=clock.tick(),
                                           value_g=0.01, flags=Flag.STABLE))
-            events.append(CaptureStateChanged(station=STATION, state=CaptureState.EMPTY,
-                                               t_mono_s=clock.tick()))
+            events.append(_capture(CaptureState.EMPTY, clock))
     events.append(
         DeviceStatus(station=STATION, device="beam", connected=True, port="/dev/heft-beam",
-                     sample_rate_hz=80.0,
+                     sample_rate_hz=80.0, frame_errors=0,
                      last_value=round(support_readings_g(*list(BUILT.values())[clubs - 1])[1], 2),
                      last_t_mono_s=clock.mono_s, model="LK-beam2", firmware="1.3.0")
     )

@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical
+from textual.reactive import var
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
 from heft.daemon.measurement import Measurement, Verdict
 from heft.daemon.physics.swingweight import describe_points
-from heft.tui.state import club_order_key, find_check
+from heft.tui.state import SetData, club_order_key, find_check
 
 BAND_COLOUR = "cyan"
 OK_MARKER = "o"
@@ -42,7 +44,7 @@ class ClubPoint:
     failed: bool
 
 
-def latest_per_club(measurements: list[Measurement]) -> list[Measurement]:
+def latest_per_club(measurements: Sequence[Measurement]) -> list[Measurement]:
     """The newest measurement of each club, clubs in set order (a re-measure replaces)."""
     latest: dict[str, Measurement] = {}
     for m in measurements:
@@ -51,7 +53,7 @@ def latest_per_club(measurements: list[Measurement]) -> list[Measurement]:
 
 
 def points_for(
-    measurements: list[Measurement], check: str, *, centred: bool = False
+    measurements: Sequence[Measurement], check: str, *, centred: bool = False
 ) -> list[ClubPoint]:
     """One point per club; ``centred`` subtracts each club's band centre (value and limits)."""
     out: list[ClubPoint] = []
@@ -89,7 +91,7 @@ class BandPlot(PlotextPlot):
         self.title = title
         self.centred = centred
 
-    def show(self, measurements: list[Measurement]) -> None:
+    def show(self, measurements: Sequence[Measurement]) -> None:
         pts = points_for(measurements, self.check, centred=self.centred)
         plt = self.plt
         plt.clear_data()
@@ -138,6 +140,8 @@ def _point_ticks(lo: float, hi: float) -> list[float]:
 class SetView(Vertical):
     """Summary line and the two plots for the current job."""
 
+    data: var[SetData] = var(SetData, init=False)
+
     def compose(self) -> ComposeResult:
         yield Static("", id="set-summary")
         yield Static(legend_text(), id="set-legend")
@@ -149,7 +153,8 @@ class SetView(Vertical):
             id="plot-weight",
         )
 
-    def show(self, job: str | None, measurements: list[Measurement]) -> None:
+    def watch_data(self, data: SetData) -> None:
+        job, measurements = data.job, data.measurements
         latest = latest_per_club(measurements)
         fails = [m for m in latest if m.verdict is Verdict.FAIL]
         near = [m for m in latest if m.verdict is Verdict.NEAR_LIMIT]

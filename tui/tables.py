@@ -2,15 +2,17 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable
+from collections.abc import Iterable, Mapping
 
 from rich.text import Text
 from textual.coordinate import Coordinate
+from textual.reactive import var
 from textual.widgets import DataTable
 
 from heft.daemon.events import Alarm, DeviceStatus
 from heft.daemon.measurement import Measurement, Verdict
 from heft.tui.format import ALARM_KIND_WORDS, VERDICT_WORDS, alarm_state_word
+from heft.tui.state import AlarmLog
 
 VERDICT_STYLE: dict[Verdict, str] = {
     Verdict.PASS: "bold green",
@@ -25,7 +27,7 @@ def _num(value: float | None, decimals: int) -> str:
 
 
 class _Table(DataTable[str | Text]):
-    """A read-mostly table rebuilt from state, keeping the cursor on the same row key."""
+    """A read-mostly table rebuilt when its reactive data changes, keeping the cursor row."""
 
     COLUMNS: tuple[str, ...] = ()
 
@@ -54,28 +56,23 @@ class MeasurementsTable(_Table):
                "moment g·in", "club id")
     # On a narrow terminal: what a bench operator checks, club id included.
     COMPACT_COLUMNS = ("#", "club", "verdict", "swing wt", "total g", "BP in", "club id")
+    LIMIT = 100  # newest rows shown
 
-    def __init__(self, *, id: str | None = None) -> None:
-        super().__init__(id=id)
-        self.compact = False
-        self._shown: list[Measurement] = []
+    measurements: var[tuple[Measurement, ...]] = var((), init=False)
+    compact: var[bool] = var(False, init=False)
+    """All columns, or the narrow set (the app sets it from the terminal's width)."""
 
     def shown_columns(self) -> tuple[str, ...]:
         return self.COMPACT_COLUMNS if self.compact else self.COLUMNS
 
-    def set_compact(self, compact: bool) -> None:
-        """Switch between all columns and the narrow set (rebuilds the table)."""
-        if compact == self.compact:
-            return
-        self.compact = compact
+    def watch_compact(self) -> None:
         if self.columns:  # else on_mount adds the right ones
             self.clear(columns=True)
             self.add_columns(*self.shown_columns())
-            self.show(self._shown)
+            self.watch_measurements(self.measurements)
 
-    def show(self, measurements: Iterable[Measurement], limit: int = 100) -> None:
-        newest_first = list(measurements)[::-1][:limit]
-        self._shown = newest_first[::-1]
+    def watch_measurements(self, measurements: tuple[Measurement, ...]) -> None:
+        newest_first = measurements[::-1][: self.LIMIT]
         wanted = [self.COLUMNS.index(c) for c in self.shown_columns()]
         self._rebuild(
             (str(m.id), tuple(_measurement_cells(m)[i] for i in wanted)) for m in newest_first
@@ -110,11 +107,14 @@ def last_reading_text(raw: float | None, grams: float | None) -> str:
 class DevicesTable(_Table):
     COLUMNS = ("device", "state", "port", "rate /s", "frame errors", "last reading",
                "model", "firmware")
+    _READING = COLUMNS.index("last reading")
 
-    def show(
-        self, devices: Iterable[DeviceStatus], grams: Callable[[str], float | None] = lambda _: None
-    ) -> None:
-        """``grams(device)`` gives its latest live value in grams, when it has a load channel."""
+    devices: var[tuple[DeviceStatus, ...]] = var((), init=False)
+    readings_g: var[Mapping[str, float | None]] = var(dict, init=False)
+    """Each device's latest live value in grams, when it has a load channel."""
+
+    def watch_devices(self, devices: tuple[DeviceStatus, ...]) -> None:
+        grams = self.readings_g
         self._rebuild(
             (
                 d.device,
@@ -125,7 +125,7 @@ class DevicesTable(_Table):
                     d.port,
                     _num(d.sample_rate_hz, 1),
                     str(d.frame_errors),
-                    last_reading_text(d.last_value, grams(d.device)),
+                    last_reading_text(d.last_value, grams.get(d.device)),
                     d.model or "-",
                     d.firmware or "-",
                 ),
@@ -133,16 +133,35 @@ class DevicesTable(_Table):
             for d in sorted(devices, key=lambda d: d.device)
         )
 
+    def watch_readings_g(self) -> None:
+        if self.is_on_screen:  # on another tab: brought up to date when shown (on_show)
+            self._show_readings()
+
+    def on_show(self) -> None:
+        self._show_readings()
+
+    def _show_readings(self) -> None:
+        """Live values move many times a second: only the cells whose text changed are redrawn."""
+        grams = self.readings_g
+        column = self.ordered_columns[self._READING].key
+        for d in self.devices:
+            text = last_reading_text(d.last_value, grams.get(d.device))
+            if d.device in self.rows and self.get_cell(d.device, column) != text:
+                self.update_cell(d.device, column, text)
+
 
 class AlarmsTable(_Table):
     """Alarm history, newest first; the row key is the alarm key so `a` can acknowledge it."""
 
     COLUMNS = ("time UTC", "state", "kind", "source", "message")
 
-    def show(self, history: Iterable[Alarm], active: dict[str, Alarm]) -> None:
+    alarm_log: var[AlarmLog] = var(AlarmLog, init=False)
+
+    def watch_alarm_log(self, log: AlarmLog) -> None:
+        active = log.active
         rows: list[tuple[str, tuple[str | Text, ...]]] = []
         seen: set[str] = set()
-        for n, alarm in enumerate(reversed(list(history))):
+        for n, alarm in enumerate(reversed(log.history)):
             # Show each alarm's current state on its newest line; older lines are history.
             current = active.get(alarm.key) if alarm.key not in seen else None
             seen.add(alarm.key)
@@ -164,7 +183,7 @@ class AlarmsTable(_Table):
             )
         self._rebuild(rows)
 
-    def select_newest_active(self, active: dict[str, Alarm]) -> None:
+    def select_newest_active(self, active: Mapping[str, Alarm]) -> None:
         """Put the cursor on the newest line of an active alarm (unacknowledged first)."""
         keys = [self.coordinate_to_cell_key(Coordinate(r, 0)).row_key.value or ""
                 for r in range(self.row_count)]
