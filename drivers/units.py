@@ -19,6 +19,7 @@ GRAMS_PER_PENNYWEIGHT: Final = 24 * GRAMS_PER_GRAIN  # 1 dwt = 24 grains = 1/20 
 GRAMS_PER_METRIC_TON: Final = 1_000_000.0  # tonne, exact
 MM_PER_INCH: Final = 25.4  # exact
 CM_PER_INCH: Final = 2.54
+STANDARD_GRAVITY_M_S2: Final = 9.80665  # standard acceleration of gravity, exact (3rd CGPM, 1901)
 
 _MASS_TO_G: Final[dict[str, float]] = {
     "g": 1.0,

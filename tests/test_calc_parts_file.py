@@ -6,7 +6,7 @@ import pytest
 
 from heft.daemon.calc.parts_file import parse_parts_file
 from heft.daemon.calc.requests import CalcError
-from heft.daemon.physics.predict import End
+from heft.daemon.physics.build_defaults import End
 
 GOOD = """
 length = "940mm"

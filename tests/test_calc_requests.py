@@ -24,7 +24,7 @@ from heft.daemon.calc.requests import (
     TargetRequest,
     TwoSupports,
 )
-from heft.daemon.physics.predict import End
+from heft.daemon.physics.build_defaults import End
 
 # 1 oz = 28.349523125 g and 1 in = 25.4 mm exactly (international yard and pound, 1959).
 OZ_G = 28.349523125

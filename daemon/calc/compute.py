@@ -7,7 +7,7 @@ code the service uses, so ``heft calc`` agrees with the dashboard for the same r
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
 from heft.daemon.calc.requests import (
     CalcError,
@@ -19,17 +19,22 @@ from heft.daemon.calc.requests import (
     PendulumRequest,
     TargetRequest,
 )
+from heft.daemon.physics.build_defaults import DEFAULT_HEAD_CG_FROM_END_IN
 from heft.daemon.physics.club import (
     BenchInputs,
     ClubNumbers,
     club_numbers,
     weight_and_balance_bench,
 )
-from heft.daemon.physics.correction import CorrectionError, CorrectionNumbers, correction_numbers
-from heft.daemon.physics.moi import PendulumError, moi_about_butt_numbers
-from heft.daemon.physics.predict import DEFAULT_HEAD_CG_FROM_END_IN, ClubBuild, statics_of_parts
 from heft.daemon.physics.swingweight import SwingweightRangeError, moment_12in_oz_in
 from heft.daemon.physics.uncertainty import UncertainValue, expanded
+
+if TYPE_CHECKING:
+    from heft.daemon.physics.correction import CorrectionNumbers
+    from heft.daemon.physics.predict import ClubBuild
+
+# Corrections, pendulums and predictions from parts import their physics where they are asked
+# for: a plain measured club, the common case, should not pay for them at start-up.
 
 # Where a correction goes when neither the target nor the club's length says: the head of a
 # mid-length iron (common practice, no source).
@@ -77,6 +82,8 @@ class CalcResult:
 def bench_of(club: Club, u: InputUncertainty, fulcrum_in: float) -> BenchInputs:
     """The raw inputs of ``club`` with their uncertainties (a prediction carries none)."""
     if isinstance(club, PartsPrediction):
+        from heft.daemon.physics.predict import statics_of_parts
+
         s = statics_of_parts(club.build.parts(), fulcrum_in)
         return weight_and_balance_bench(
             UncertainValue(s.total_weight_g), UncertainValue(s.balance_point_in), fulcrum_in
@@ -134,6 +141,8 @@ def _correction(
         else:
             at_in, at_u, source = DEFAULT_CORRECTION_AT_IN, 0.0, "default"
     position = UncertainValue(at_in, at_u)
+    from heft.daemon.physics.correction import CorrectionError, correction_numbers
+
     try:
         numbers = correction_numbers(bench, target.points, position)
     except (CorrectionError, SwingweightRangeError) as err:
@@ -144,6 +153,8 @@ def _correction(
 
 def _moi(request: CalcRequest, pendulum: PendulumRequest, bench: BenchInputs) -> Reported:
     """MOI about the butt from a pendulum swing."""
+    from heft.daemon.physics.moi import PendulumError, moi_about_butt_numbers
+
     try:
         value, moi_u = moi_about_butt_numbers(
             bench,

@@ -15,7 +15,7 @@ from typing import Annotated, Any
 from pydantic import BaseModel, BeforeValidator, ConfigDict, ValidationError
 
 from heft.daemon.calc.requests import CalcError, ExtraMass
-from heft.daemon.physics.predict import End
+from heft.daemon.physics.build_defaults import End
 from heft.drivers.units import parse_quantity
 from heft.drivers.validation import problem_lines
 

@@ -10,25 +10,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
+from heft.daemon.physics.build_defaults import DEFAULT_GRIP_CG_IN, DEFAULT_HEAD_CG_FROM_END_IN, End
 from heft.daemon.physics.club import (
     BenchInputs,
     lever_bench,
     two_supports_bench,
     weight_and_balance_bench,
-)
-from heft.daemon.physics.moi import STANDARD_GRAVITY_M_S2
-from heft.daemon.physics.predict import (
-    DEFAULT_GRIP_CG_IN,
-    DEFAULT_HEAD_CG_FROM_END_IN,
-    BuildError,
-    ClubBuild,
-    End,
-    Part,
-    Shaft,
-    change_length,
-    predict,
 )
 from heft.daemon.physics.statics import StaticsError
 from heft.daemon.physics.swingweight import (
@@ -40,6 +29,13 @@ from heft.daemon.physics.swingweight import (
     points_from_label,
 )
 from heft.daemon.physics.uncertainty import UncertainValue, combine_u, net_resolution_u
+from heft.drivers.units import STANDARD_GRAVITY_M_S2
+
+if TYPE_CHECKING:
+    from heft.daemon.physics.predict import ClubBuild, Part
+
+# The prediction code (heft.daemon.physics.predict) is imported where a parts request is made,
+# not here: a measured club, the common case, should not pay for it at start-up.
 
 
 class CalcError(ValueError):
@@ -189,6 +185,8 @@ class ExtraMass:
     rides_with: End | None = None
 
     def place(self, length_in: float) -> Part:
+        from heft.daemon.physics.predict import Part
+
         end = self.rides_with
         if end is None:
             end = End.TIP if self.position_in > length_in / 2 else End.BUTT
@@ -221,6 +219,8 @@ class PartsPrediction:
     points_before_change: float | None = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
+        from heft.daemon.physics.predict import BuildError, change_length, predict
+
         build = self._build()
         before = None
         if self.length_change_in is not None:
@@ -233,6 +233,8 @@ class PartsPrediction:
         object.__setattr__(self, "points_before_change", before)
 
     def _build(self) -> ClubBuild:
+        from heft.daemon.physics.predict import BuildError, ClubBuild, Shaft
+
         parts = []
         for i, extra in enumerate(self.extras):
             try:

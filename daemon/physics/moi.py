@@ -22,9 +22,7 @@ from dataclasses import dataclass
 from heft.daemon.physics.club import BenchInputs
 from heft.daemon.physics.statics import ClubStatics
 from heft.daemon.physics.uncertainty import UncertainValue
-from heft.drivers.units import g_in2_to_kg_cm2, m_to_in
-
-STANDARD_GRAVITY_M_S2 = 9.80665  # exact by definition (3rd CGPM, 1901)
+from heft.drivers.units import STANDARD_GRAVITY_M_S2, g_in2_to_kg_cm2, m_to_in
 
 
 class PendulumError(ValueError):

@@ -12,29 +12,19 @@ shaft's length, which every real shaft satisfies.
 
 from __future__ import annotations
 
-import enum
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 
+from heft.daemon.physics.build_defaults import DEFAULT_GRIP_CG_IN, DEFAULT_HEAD_CG_FROM_END_IN, End
 from heft.daemon.physics.club import ClubNumbers, club_from_weight_and_balance
 from heft.daemon.physics.statics import ClubStatics, balance_point_from_moment_in
 from heft.daemon.physics.swingweight import FULCRUM_14_IN
 from heft.daemon.physics.uncertainty import UncertainValue
 
-# Head CG back from the far end of the club along the shaft axis: 0.5-1.5 in (common practice).
-DEFAULT_HEAD_CG_FROM_END_IN = 1.0
-# Grip CG from the butt: 4-5 in (common practice).
-DEFAULT_GRIP_CG_IN = 4.5
-
 
 class BuildError(ValueError):
     """Parts that cannot make a club (negative mass, a shaft balance point off the shaft...)."""
-
-
-class End(enum.StrEnum):
-    TIP = "tip"
-    BUTT = "butt"
 
 
 @dataclass(frozen=True)

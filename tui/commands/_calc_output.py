@@ -10,7 +10,7 @@ from typing import TextIO
 
 from heft.daemon.calc.compute import CalcResult
 from heft.daemon.calc.requests import Method
-from heft.daemon.physics.predict import DEFAULT_HEAD_CG_FROM_END_IN
+from heft.daemon.physics.build_defaults import DEFAULT_HEAD_CG_FROM_END_IN
 from heft.daemon.physics.swingweight import points_in_range
 from heft.drivers.units import g_in2_to_kg_cm2, g_to_oz, in_to_mm
 

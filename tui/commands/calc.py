@@ -9,11 +9,9 @@ own errors), fills the request objects of ``heft.daemon.calc.requests`` and prin
 from __future__ import annotations
 
 import argparse
-import json
 import math
 import sys
 from collections.abc import Mapping
-from pathlib import Path
 from typing import Any
 
 from heft.daemon.calc.compute import DEFAULT_CORRECTION_AT_IN, CalcResult, calculate
@@ -30,10 +28,9 @@ from heft.daemon.calc.requests import (
     TargetRequest,
     TwoSupports,
 )
-from heft.daemon.physics.moi import STANDARD_GRAVITY_M_S2
-from heft.daemon.physics.predict import DEFAULT_GRIP_CG_IN, DEFAULT_HEAD_CG_FROM_END_IN, End
+from heft.daemon.physics.build_defaults import DEFAULT_GRIP_CG_IN, DEFAULT_HEAD_CG_FROM_END_IN, End
 from heft.daemon.physics.swingweight import FULCRUM_14_IN
-from heft.drivers.units import UnitError, parse_quantity
+from heft.drivers.units import STANDARD_GRAVITY_M_S2, UnitError, parse_quantity
 from heft.tui.commands._calc_output import print_human, result_as_json, uncertainty_text
 
 __all__ = ["calculate_args", "register", "run", "uncertainty_text"]
@@ -199,9 +196,10 @@ def _parse_extra(text: str) -> ExtraMass:
     return ExtraMass(text, mass_g, position_in, end)
 
 
-def _read_parts_file(path: Path) -> tuple[dict[str, float], list[ExtraMass]]:
+def _read_parts_file(path: str) -> tuple[dict[str, float], list[ExtraMass]]:
     try:
-        text = path.read_text(encoding="utf-8")
+        with open(path, encoding="utf-8") as file:  # noqa: PTH123 - pathlib costs calc ~4 ms at start-up
+            text = file.read()
     except OSError as err:
         raise CalcInputError(f"--parts: cannot read {path}: {err.strerror}") from None
     except UnicodeDecodeError:
@@ -219,7 +217,7 @@ def _parts(args: argparse.Namespace, sources: dict[str, str]) -> PartsPrediction
     extras: list[ExtraMass] = []
     if args.parts is not None:
         sources["parts_file"] = f"--parts {args.parts}"
-        values, extras = _read_parts_file(Path(args.parts))
+        values, extras = _read_parts_file(args.parts)
         sources.update({f"club.extras[{i}]": sources["parts_file"] for i in range(len(extras))})
     for dest, name in _PARTS_FIELDS.items():
         value = _quantity(args, dest, "mass" if name.endswith("_g") else "length")
@@ -377,6 +375,8 @@ def run(args: argparse.Namespace) -> int:
             file=sys.stderr,
         )
     if args.json:
+        import json  # here: only --json needs it (start-up)
+
         json.dump(result_as_json(result), sys.stdout, indent=2)
         sys.stdout.write("\n")
     else:
