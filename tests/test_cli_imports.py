@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 
@@ -58,3 +59,23 @@ def test_version_imports_no_command() -> None:
 )
 def test_commands_to_load(argv: list[str], expected: tuple[str, ...]) -> None:
     assert commands_to_load(argv) == expected
+
+
+@pytest.mark.parametrize("argv", [["schema"], ["schema", "measurement"], ["config", "example"]])
+def test_a_reader_that_has_gone_is_a_quiet_end(argv: list[str]) -> None:
+    """``heft schema | head -1``: the command ends quietly, no BrokenPipeError traceback.
+
+    The pipe's reading end is closed before the command starts, so its first write fails
+    (EPIPE) every time, however small the output is.
+    """
+    read_end, write_end = os.pipe()
+    os.close(read_end)
+    try:
+        done = subprocess.run(
+            [sys.executable, "-m", "heft.tui.cli", *argv], stdout=write_end,
+            stderr=subprocess.PIPE, text=True, timeout=60, check=False,
+        )  # fmt: skip
+    finally:
+        os.close(write_end)
+    assert done.returncode == 0, done.stderr
+    assert "Traceback" not in done.stderr and "BrokenPipe" not in done.stderr, done.stderr
