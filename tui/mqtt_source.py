@@ -29,6 +29,7 @@ from heft.daemon.mqtt_client import make_client, raise_if_cancel_requested
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
 from heft.daemon.mqtt_topics import Topics, check_level
 from heft.daemon.wire import ActiveAlarms, StationStatus, WireCodec, WireError
+from heft.drivers.validation import problem_lines
 from heft.tui.source import EventSource
 
 log = logging.getLogger(__name__)
@@ -67,9 +68,8 @@ def settings_from_url(url: str) -> MqttSettings:
             topic_root=root,
         )
     except ValidationError as err:
-        first = err.errors()[0]
-        where = ".".join(str(p) for p in first["loc"])
-        raise BrokerUrlError(f"broker URL {url!r}: {where}: {first['msg']}") from None
+        line = problem_lines(err, MqttSettings, first_only=True)[0]
+        raise BrokerUrlError(f"broker URL {url!r}: {line}") from None
 
 
 class AlarmSnapshots:
