@@ -32,27 +32,23 @@ import os
 import random
 import re
 import sqlite3
-import statistics
-import struct
 import subprocess
 import sys
 import tempfile
 import time
 from collections.abc import AsyncIterator, Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from datetime import datetime
 from functools import partial
 from pathlib import Path
 from typing import Any
 
 from heft.daemon.storage import Store
-from heft.drivers.reading import ClubTag, Reading
-from heft.drivers.recording import read_recording
-from heft.drivers.registry import available_drivers, create_driver
 from heft.drivers.sim.physics import Placement
 from heft.drivers.sim.pty_server import PtyDevice
+from tests.bench.drill_fuzz import fuzz
+from tests.bench.drill_result import DrillResult, span_text
 from tests.bench.rig import (
-    REPO,
     HeftRun,
     Listener,
     beam_definition,
@@ -71,30 +67,6 @@ STATION = "bench-1"
 PERIOD_S = 2.6  # a club every 2.6 s, on the beam for 1.7 s
 ON_S = 1.7
 LOG_TIME = re.compile(r"^(\d{4}-\d\d-\d\d \d\d:\d\d:\d\d,\d{3}) ")
-
-
-@dataclass
-class DrillResult:
-    name: str
-    repetitions: int = 0
-    measurements: int = 0
-    redeliveries: int = 0
-    lost: int = 0
-    undetected_duplicates: int = 0
-    integrity_failures: int = 0
-    detect_s: list[float] = field(default_factory=list)
-    recover_s: list[float] = field(default_factory=list)
-    notes: list[str] = field(default_factory=list)
-
-    @property
-    def ok(self) -> bool:
-        return self.lost == 0 and self.undetected_duplicates == 0 and self.integrity_failures == 0
-
-
-def _span(values: Sequence[float]) -> str:
-    if not values:
-        return "-"
-    return f"{statistics.median(values):.2f} / {max(values):.2f}"
 
 
 # --------------------------------------------------------------------------- a station
@@ -438,134 +410,6 @@ async def disk_full(work: Path, full_s: float) -> DrillResult:
     return result
 
 
-# --------------------------------------------------------------------------- fuzz
-
-
-@dataclass
-class FuzzCorpus:
-    driver: str
-    options: dict[str, Any]
-    good: list[bytes]  # frames that produce a reading or tag
-    values: dict[bytes, set[object]]  # what each good frame says (values or club ids)
-    framed: bool  # True: one frame per feed (HID reports); False: a byte stream of lines
-
-
-def _line_corpus(recording: Path) -> FuzzCorpus:
-    rec = read_recording(recording)
-    stream = b"".join(c.data for c in rec.rx)
-    lines = [line + b"\n" for line in stream.replace(b"\r\n", b"\n").split(b"\n") if line]
-    driver = create_driver(rec.header.driver, "fuzz", rec.header.options)
-    values: dict[bytes, set[object]] = {}
-    for line in lines:
-        said = {_said(o) for o in driver.feed(line, 0.0) if isinstance(o, Reading | ClubTag)}
-        if said:
-            values[line] = said
-    return FuzzCorpus(rec.header.driver, dict(rec.header.options), list(values), values,
-                      framed=False)
-
-
-def _said(output: Reading | ClubTag) -> object:
-    return output.club_id if isinstance(output, ClubTag) else output.value
-
-
-def _hid_corpus() -> FuzzCorpus:
-    # Data reports (docs/protocols.md section d): id 3, status 4 (stable), unit 2 (g), exp -1.
-    good = [struct.pack("<BBBbH", 3, 4, 2, -1, w) for w in range(0, 5000, 37)]
-    driver = create_driver("hid_pos", "fuzz", {})
-    values = {g: {_said(o) for o in driver.feed(g, 0.0) if isinstance(o, Reading)} for g in good}
-    return FuzzCorpus("hid_pos", {}, good, values, framed=True)
-
-
-def fuzz_corpora() -> list[FuzzCorpus]:
-    # Text recordings only: a binary one (hid_pos) is whole reports, fuzzed by _hid_corpus.
-    corpora = [_line_corpus(p) for p in sorted((REPO / "hardware_fixtures/recordings").glob(
-        "*.jsonl")) if not read_recording(p).header.binary]
-    corpora.append(_hid_corpus())
-    return corpora
-
-
-def _mutate(frame: bytes, rng: random.Random) -> bytes:
-    data = bytearray(frame)
-    kind = rng.randrange(7)
-    if kind == 0 and data:  # flip bits
-        for _ in range(rng.randint(1, 3)):
-            i = rng.randrange(len(data))
-            data[i] ^= 1 << rng.randrange(8)
-    elif kind == 1 and data:  # replace bytes with any byte
-        for _ in range(rng.randint(1, 4)):
-            data[rng.randrange(len(data))] = rng.randrange(256)
-    elif kind == 2 and data:  # truncate
-        del data[rng.randrange(len(data)):]
-    elif kind == 3:  # insert random bytes
-        i = rng.randrange(len(data) + 1)
-        data[i:i] = bytes(rng.randrange(256) for _ in range(rng.randint(1, 8)))
-    elif kind == 4:  # pure garbage
-        data = bytearray(rng.randbytes(rng.randint(1, 64)))
-    elif kind == 5:  # an over-long line
-        data = bytearray(rng.randbytes(1)) * rng.randint(300, 5000)
-    else:  # delete a span
-        if data:
-            i = rng.randrange(len(data))
-            del data[i:i + rng.randint(1, 6)]
-    return bytes(data)
-
-
-def _outputs_of(driver: Any, frame: bytes, framed: bool, rng: random.Random) -> list[Any]:
-    if framed:
-        return list(driver.feed(frame, 0.0))
-    out: list[Any] = []
-    i = 0
-    while i < len(frame):  # random chunking, as a serial port delivers
-        j = min(len(frame), i + rng.randint(1, 24))
-        out.extend(driver.feed(frame[i:j], 0.0))
-        i = j
-    return out
-
-
-def fuzz(frames_per_driver: int, seed: int = 1) -> tuple[DrillResult, list[list[object]]]:
-    """Fuzzed frames through every protocol driver, each followed by a good frame (a canary).
-
-    Lost = a canary after a fuzzed frame that did not come out as a reading (a bad frame took a
-    good one with it); any exception out of ``feed`` counts as an integrity failure.
-    """
-    rng = random.Random(seed)
-    result = DrillResult(f"fuzz {frames_per_driver} frames x driver", repetitions=0)
-    rows: list[list[object]] = []
-    corpora = fuzz_corpora()
-    covered = {c.driver for c in corpora}
-    missing = set(available_drivers()) - covered
-    if missing:
-        result.notes.append(f"drivers without a corpus: {sorted(missing)}")
-    for corpus in corpora:
-        driver = create_driver(corpus.driver, "fuzz", corpus.options)
-        lost = crashes = accepted = altered = 0
-        t0 = time.perf_counter()
-        for _ in range(frames_per_driver):
-            original = rng.choice(corpus.good)
-            frame = _mutate(original, rng)
-            try:
-                got = _outputs_of(driver, frame, corpus.framed, rng)
-                if not corpus.framed:
-                    got += driver.feed(b"\r\n", 0.0)
-                said = [_said(o) for o in got if isinstance(o, Reading | ClubTag)]
-                accepted += len(said)
-                altered += sum(v not in corpus.values[original] for v in said)
-                canary = _outputs_of(driver, rng.choice(corpus.good), corpus.framed, rng)
-            except Exception as err:  # the drill's point: feed must never raise
-                crashes += 1
-                result.notes.append(f"{corpus.driver}: feed raised {err!r}")
-                continue
-            if not any(isinstance(o, Reading | ClubTag) for o in canary):
-                lost += 1
-        seconds = time.perf_counter() - t0
-        result.repetitions += frames_per_driver
-        result.lost += lost
-        result.integrity_failures += crashes
-        rows.append([corpus.driver, frames_per_driver, driver.stats.frame_errors, accepted,
-                     altered, lost, crashes, f"{frames_per_driver / seconds:.0f}"])
-    return result, rows
-
-
 # --------------------------------------------------------------------------- runner
 
 SHORT: dict[str, Callable[[Path], Any]] = {
@@ -590,7 +434,7 @@ def report(results: Sequence[DrillResult]) -> None:
         ["drill", "reps", "measurements", "lost", "undetected dup", "re-deliveries",
          "integrity fail", "detect s (med/max)", "recover s (med/max)", "pass"],
         [[r.name, r.repetitions, r.measurements, r.lost, r.undetected_duplicates,
-          r.redeliveries, r.integrity_failures, _span(r.detect_s), _span(r.recover_s),
+          r.redeliveries, r.integrity_failures, span_text(r.detect_s), span_text(r.recover_s),
           "yes" if r.ok else "NO"] for r in results],
     )
     for r in results:
