@@ -208,7 +208,9 @@ class MqttLink:
             log.warning("MQTT connection lost: %s", err)
         except Exception as err:
             log.exception("MQTT link error; reconnecting")
-            raise aiomqtt.MqttError(f"link error: {err!r}") from err
+            # A session that stayed up was a good one: the backoff starts over after it.
+            if started_at is None or self._clock() - started_at < STABLE_SESSION_S:
+                raise aiomqtt.MqttError(f"link error: {err!r}") from err
         finally:
             self._connected.clear()
             self._state.connected = False

@@ -98,6 +98,8 @@ class StationCommands:
 
     async def _execute(self, cmd: api.Command) -> tuple[str, dict[str, Any]]:
         p = self._pipeline
+        if isinstance(cmd, api.Ping):
+            return "pong", {}
         if isinstance(cmd, api.Tare):
             tared = p.tare(self._known_device(cmd.device))
             self._route(tared.outputs)

@@ -211,7 +211,7 @@ async def test_command_round_trip_mqtt5_response_topic_and_correlation(
 ) -> None:
     handler = RecordingHandler()
     link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler)
-    response_topic = f"{link.topics.root}/clients/qc-tablet/replies"
+    response_topic = f"{link.topics.cmd_reply}/qc-tablet"
     async with running(link), collecting(broker, response_topic) as (client, got):
         props = Properties(PacketTypes.PUBLISH)
         props.ResponseTopic = response_topic
