@@ -8,6 +8,7 @@ from __future__ import annotations
 from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
+from pydantic.json_schema import SkipJsonSchema
 
 from heft.drivers.validation import problem_lines
 
@@ -21,6 +22,9 @@ Text = Annotated[str, Field(max_length=200)]
 class _Cmd(BaseModel):
     model_config = ConfigDict(frozen=True, extra="forbid", allow_inf_nan=False)
     request_id: Text | None = Field(default=None, description="echoed in the reply (MQTT 3.1.1)")
+    # Set by the station from a verified signature (heft.daemon.command_auth), never sent: the
+    # MQTT responder refuses a payload that carries it, and it is left out of every dump.
+    operator: SkipJsonSchema[str | None] = Field(default=None, exclude=True)
 
 
 class Ping(_Cmd):

@@ -5,6 +5,9 @@ them, else to ``<root>/<station>/cmd/reply`` with the request id echoed (MQTT 3.
 A response topic outside ``<root>/<station>/cmd/reply/#`` is ignored (logged): a command must
 not make the station publish where measurements or state are read.
 
+State-changing commands are checked by :mod:`heft.daemon.command_auth` (signed by an operator
+key, or an open bench); the operator who signed goes into the command and its reply.
+
 Bad input never reaches the link as an exception: the size is checked before any parsing, and
 every decoding problem (invalid UTF-8 or JSON, nesting deep enough to exhaust the parser's
 recursion) becomes an error reply.
@@ -22,6 +25,7 @@ from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
 from heft.daemon.command_api import Command, Reply, parse_command
+from heft.daemon.command_auth import CommandAuthority
 from heft.daemon.mqtt_settings import MqttSettings
 from heft.daemon.mqtt_topics import Topics
 
@@ -38,14 +42,21 @@ class CommandResponder:
         settings: ``commands_enabled`` refuses every command when false.
         topics: the station's topics (the default reply topic).
         handle_command: called with each valid command; None refuses commands.
+        authority: who may change the station (signed commands); None refuses every
+            state-changing command.
     """
 
     def __init__(
-        self, settings: MqttSettings, topics: Topics, handle_command: CommandHandler | None
+        self,
+        settings: MqttSettings,
+        topics: Topics,
+        handle_command: CommandHandler | None,
+        authority: CommandAuthority | None = None,
     ) -> None:
         self.settings = settings
         self.topics = topics
         self._handle_command = handle_command
+        self.authority = authority if authority is not None else CommandAuthority({})
 
     async def answer(self, client: aiomqtt.Client, msg: aiomqtt.Message) -> None:
         reply = await self.reply_to(raw_payload(msg.payload))
@@ -101,10 +112,15 @@ class CommandResponder:
                 message=f"refused: commands are disabled on station {station} "
                 "(mqtt.commands_enabled = false)",
             )
-        parsed = parse_command(obj)
+        verdict = self.authority.check(obj)
+        parsed = parse_command(verdict.command)
         if isinstance(parsed, Reply):
             return parsed.model_copy(update=echo)
         echo = {"command": parsed.command, "request_id": parsed.request_id}
+        if verdict.refusal is not None:
+            log.warning("command %s refused: %s", parsed.command, verdict.refusal)
+            return Reply(ok=False, **echo, message=verdict.refusal)
+        parsed = parsed.model_copy(update={"operator": verdict.operator})
         if self._handle_command is None:
             return Reply(ok=False, **echo, message=f"refused: station {station} takes no commands")
         try:
@@ -116,6 +132,7 @@ class CommandResponder:
             update={
                 "command": reply.command or parsed.command,
                 "request_id": parsed.request_id,
+                "operator": verdict.operator,
             }
         )
 

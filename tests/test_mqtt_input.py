@@ -19,7 +19,7 @@ import pytest
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
-from heft.daemon.command_api import Command, Reply, parse_command
+from heft.daemon.command_api import Reply, parse_command
 from heft.daemon.config import ConfigError, parse_config
 from heft.daemon.config_example import example_toml
 from heft.daemon.events import EventBus
@@ -28,21 +28,17 @@ from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.storage import Store
 from heft.tui.cli import main
 from tests.mqtt_broker import Broker
-from tests.mqtt_helpers import collecting, running, settings_for, stop_task, wait_until
+from tests.mqtt_helpers import (
+    RecordingHandler,
+    collecting,
+    running,
+    settings_for,
+    stop_task,
+    wait_until,
+)
 
 # 5000 levels: CPython's json parser exhausts its recursion limit long before that.
 NESTED = ("[" * 5000 + "]" * 5000).encode()
-
-
-class RecordingHandler:
-    """Stands in for the service's command handler: records commands, answers ok."""
-
-    def __init__(self) -> None:
-        self.commands: list[Command] = []
-
-    async def __call__(self, command: Command) -> Reply:
-        self.commands.append(command)
-        return Reply(ok=True, command=command.command, message="done")
 
 
 @pytest.fixture

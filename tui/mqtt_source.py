@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import json
 import logging
 import math
 import time
@@ -24,6 +25,7 @@ from pydantic import SecretStr, ValidationError
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential
 
 from heft.daemon.command_api import Command, Reply
+from heft.daemon.command_auth import Signer
 from heft.daemon.events import Alarm, AlarmChanged, Event, station_of
 from heft.daemon.mqtt_client import make_client, raise_if_cancel_requested
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
@@ -112,6 +114,7 @@ class MqttSource(EventSource):
             :func:`settings_from_url`).
         station: only this station; None subscribes to every station under the root.
         commands_enabled: False (the default) makes the dashboard read-only.
+        signer: signs each command with the operator's key (``heft dash --key-file``).
     """
 
     def __init__(
@@ -121,8 +124,10 @@ class MqttSource(EventSource):
         commands_enabled: bool = False,
         *,
         reply_timeout_s: float = REPLY_TIMEOUT_S,
+        signer: Signer | None = None,
     ) -> None:
         super().__init__()
+        self.signer = signer
         self.settings = settings_from_url(broker) if isinstance(broker, str) else broker
         if station is not None:
             check_level(station, "station")
@@ -256,8 +261,10 @@ class MqttSource(EventSource):
         future: asyncio.Future[Reply] = asyncio.get_running_loop().create_future()
         self._pending[request_id] = future
         try:
-            await client.publish(topics.cmd, cmd.model_dump_json(exclude_none=True), qos=1,
-                                 properties=props)
+            body = cmd.model_dump(mode="json", exclude_none=True)
+            if self.signer is not None:  # state-changing commands need an operator's signature
+                body = self.signer.sign(body)
+            await client.publish(topics.cmd, json.dumps(body), qos=1, properties=props)
             return await asyncio.wait_for(future, self.reply_timeout_s)
         except TimeoutError:
             return Reply(ok=False, command=cmd.command, request_id=request_id,
