@@ -22,19 +22,22 @@ from heft.daemon.command_auth import (
     CommandAuthority,
     KeyFileError,
     Signer,
+    authority_from_config,
     canonical,
     load_keys,
     new_key_file,
     signature,
 )
-from heft.daemon.config import parse_config
+from heft.daemon.config import load_config, parse_config
+from heft.daemon.config_example import example_toml
 from heft.daemon.events import EventBus
 from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.mqtt_topics import Topics
 from heft.daemon.service import Service
 from heft.daemon.storage import Store
 from heft.drivers.sim.pty_server import PtyDevice
-from heft.tui.cli import main
+from heft.tui.cli import build_parser, main
+from heft.tui.commands import dash
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import (
     RecordingHandler,
@@ -209,3 +212,43 @@ async def test_signed_calibration_names_the_operator_in_its_record(
     assert signed.operator == "ana"
     assert signed.data["calibration"]["operator"] == "ana"
     assert [(r.kind, r.operator) for r in records] == [("zero", "ana")]
+
+
+def test_dash_key_file_signs_as_its_operator(tmp_path: Path) -> None:
+    key = tmp_path / "ana.key"
+    new_key_file(key, "ana")
+    url = "mqtt://127.0.0.1:1883"
+    args = build_parser().parse_args(["dash", "--broker", url, "--commands", "--key-file",
+                                      str(key)])
+    source = dash.build_source(args)
+    assert source.signer is not None and source.signer.operator == "ana"
+    for argv in (["--key-file", str(key)], ["--commands", "--key-file", str(tmp_path)]):
+        with pytest.raises(SystemExit):  # no --commands; a folder is no key file
+            dash.build_source(build_parser().parse_args(["dash", "--broker", url, *argv]))
+
+
+def test_config_names_the_keys_and_says_what_the_station_allows(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], caplog: pytest.LogCaptureFixture
+) -> None:
+    keys = tmp_path / "operators"
+    new_key_file(keys, "ana")
+    config = tmp_path / "station.toml"
+    text = example_toml("two_support")
+    config.write_text(text.replace('# keys_file = "/etc/heft/operator-keys"',
+                                   'keys_file = "operators"'))  # relative to the config
+    assert main(["config", "check", str(config)]) == 0
+    assert "commands signed (1 operator key(s))" in capsys.readouterr().out
+    keys.chmod(0o640)
+    assert main(["config", "check", str(config)]) == 2
+    assert "commands.keys_file" in capsys.readouterr().err
+    loaded = parse_config(tomllib.loads(config.read_text()))
+    assert loaded.commands.keys_file == Path("operators")  # resolved only by load_config
+    refused = authority_from_config(load_config(config).commands)  # readable by the group
+    assert refused.check({"command": "rearm"}).refusal is not None
+    assert "let others read" in caplog.text
+    caplog.clear()
+    open_bench = parse_config(tomllib.loads(text.replace("open_bench = false",
+                                                          "open_bench = true")))
+    assert authority_from_config(open_bench.commands).check({"command": "rearm"}).refusal is None
+    assert any(r.levelname == "WARNING" and "open_bench" in r.getMessage()
+               for r in caplog.records)
