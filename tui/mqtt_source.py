@@ -14,6 +14,7 @@ import contextlib
 import json
 import logging
 import math
+import re
 import time
 import uuid
 from urllib.parse import unquote, urlsplit
@@ -44,18 +45,27 @@ class BrokerUrlError(ValueError):
     """A --broker value that is not ``mqtt://[user[:password]@]host[:port][/topic-root]``."""
 
 
+_URL_PASSWORD = re.compile(r"(//[^/@:]*:)[^/@]*@")
+
+
+def shown_url(url: str) -> str:
+    """``url`` as an error message may print it: a password in it becomes ``***``."""
+    return _URL_PASSWORD.sub(r"\1***@", url)
+
+
 def settings_from_url(url: str) -> MqttSettings:
     """MqttSettings from ``mqtt://host:port``; ``mqtts://`` turns on TLS; a path sets the root."""
     expected = "expected mqtt://[user[:password]@]host[:port][/topic-root], e.g. mqtt://127.0.0.1:1883"
+    shown = shown_url(url)
     try:
         parts = urlsplit(url)
         port_given = parts.port
     except ValueError as err:
-        raise BrokerUrlError(f"broker URL {url!r}: {err}; {expected}") from None
+        raise BrokerUrlError(f"broker URL {shown!r}: {err}; {expected}") from None
     if parts.scheme not in _SCHEMES:
-        raise BrokerUrlError(f"broker URL {url!r}: unknown scheme {parts.scheme!r}; {expected}")
+        raise BrokerUrlError(f"broker URL {shown!r}: unknown scheme {parts.scheme!r}; {expected}")
     if not parts.hostname:
-        raise BrokerUrlError(f"broker URL {url!r}: no host; {expected}")
+        raise BrokerUrlError(f"broker URL {shown!r}: no host; {expected}")
     default_port, tls = _SCHEMES[parts.scheme]
     root = parts.path.strip("/") or "heft"
     try:
@@ -71,7 +81,7 @@ def settings_from_url(url: str) -> MqttSettings:
     except ValidationError as err:
         first = err.errors()[0]
         where = ".".join(str(p) for p in first["loc"])
-        raise BrokerUrlError(f"broker URL {url!r}: {where}: {first['msg']}") from None
+        raise BrokerUrlError(f"broker URL {shown!r}: {where}: {first['msg']}") from None
 
 
 class AlarmSnapshots:
