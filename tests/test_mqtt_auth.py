@@ -17,7 +17,7 @@ from typing import Any
 
 import pytest
 
-from heft.daemon.command_api import Reply
+from heft.daemon.command_api import Reply, parse_command
 from heft.daemon.command_auth import (
     CommandAuthority,
     KeyFileError,
@@ -33,6 +33,7 @@ from heft.daemon.config_example import example_toml
 from heft.daemon.events import EventBus
 from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.mqtt_topics import Topics
+from heft.daemon.pipeline import BenchPipeline
 from heft.daemon.service import Service
 from heft.daemon.storage import Store
 from heft.drivers.sim.pty_server import PtyDevice
@@ -48,6 +49,7 @@ from tests.mqtt_helpers import (
     wait_until,
 )
 from tests.service_bench import LARKSPUR_CLUBS, beam_device, placements, station_toml
+from tests.test_service_single_scale import T0, qc2_config, weighing
 
 KEY = bytes.fromhex("5c" * 32)  # invented test key
 NOW = 1_780_000_000.0  # an invented wall-clock time for the unit checks
@@ -252,3 +254,26 @@ def test_config_names_the_keys_and_says_what_the_station_allows(
     assert authority_from_config(open_bench.commands).check({"command": "rearm"}).refusal is None
     assert any(r.levelname == "WARNING" and "open_bench" in r.getMessage()
                for r in caplog.records)
+
+
+async def test_a_measurement_completed_by_a_signed_command_names_the_operator(
+    tmp_path: Path,
+) -> None:
+    """The balance point entered by ana completes the club: the stored record says so."""
+    config = qc2_config(tmp_path)
+    service = Service(config)
+    pipeline = BenchPipeline(config, lambda: T0)
+    service._assemble(pipeline, Store(tmp_path / "heft.db"))  # fed below without ports
+    for r in weighing("balance", 405.0, 1.0, 5.0, 4.0):
+        pipeline.feed(r)
+    verdict = CommandAuthority({"ana": KEY}).check(
+        Signer("ana", KEY).sign({"command": "set_balance_point", "balance_point": "29.2in"})
+    )
+    assert verdict.operator == "ana"
+    cmd = parse_command(verdict.command)
+    assert not isinstance(cmd, Reply)
+    reply = await service.handle_command(cmd.model_copy(update={"operator": verdict.operator}))
+    assert reply.ok and reply.operator == "ana", reply.message
+    assert service._to_store is not None
+    m = service._to_store.get_nowait()
+    assert m.operator == "ana" and m.balance_point_in == pytest.approx(29.2)
