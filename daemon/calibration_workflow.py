@@ -150,7 +150,7 @@ class CalibrationWorkflow:
 
     # ------------------------------------------------------------------------------ steps
 
-    async def zero(self, channel: str) -> StepResult:
+    async def zero(self, channel: str, operator: str = "") -> StepResult:
         """Take the empty channel's counts as its zero (refused loaded, moving or shifted)."""
         channel = self._counts_channel(channel)
         if self._bench.is_loaded(channel):
@@ -169,6 +169,7 @@ class CalibrationWorkflow:
             self.config.station, channel, window, self._clock_utc(), current,
             self._device_info(channel),
         )
+        record = record.model_copy(update={"operator": operator})  # who did it
         await self._keep(record)
         self._pending_zero[channel] = record
         if usable(record):
@@ -178,7 +179,9 @@ class CalibrationWorkflow:
             f"{channel} zero taken ({record.zero_counts:.0f} counts); span next", record
         )
 
-    async def span(self, channel: str, reference: ReferenceMass) -> StepResult:
+    async def span(
+        self, channel: str, reference: ReferenceMass, operator: str = ""
+    ) -> StepResult:
         """Counts per gram from ``reference`` on the supports, against the latest zero."""
         channel = self._counts_channel(channel)
         current = self._bench.calibrations.get(channel)
@@ -191,6 +194,7 @@ class CalibrationWorkflow:
             self.config.channel(channel).calibration_interval_days, current,
             self._device_info(channel),
         )
+        record = record.model_copy(update={"operator": operator})  # who did it
         await self._keep(record)
         self._pending_zero.pop(channel, None)
         self._bench.set_calibration(record)
@@ -201,7 +205,11 @@ class CalibrationWorkflow:
         )
 
     async def verify(
-        self, channel: str, reference: ReferenceMass, tolerance_g: float | None = None
+        self,
+        channel: str,
+        reference: ReferenceMass,
+        tolerance_g: float | None = None,
+        operator: str = "",
     ) -> StepResult:
         """Read a check mass with the active calibration; a failure raises calibration-due."""
         channel = self._counts_channel(channel)
@@ -216,6 +224,7 @@ class CalibrationWorkflow:
             self.config.station, channel, current, window, reference, tolerance,
             self._clock_utc(), self._device_info(channel),
         )
+        record = record.model_copy(update={"operator": operator})  # who did it
         await self._keep(record)
         if not record.passed:
             self._alarms(AlarmCondition(

@@ -44,6 +44,7 @@ from heft.daemon.config_sections import (
     ChannelConfig,
     ChannelField,
     ClubTarget,
+    CommandsConfig,
     ConfigSection,
     DeviceConfig,
     Geometry,
@@ -120,6 +121,7 @@ class StationConfig(ConfigSection):
     specs: dict[str, SpecConfig] = Field(default_factory=dict)
     jobs: dict[str, JobConfig] = Field(default_factory=dict)
     mqtt: MqttSettings = Field(default_factory=lambda: MqttSettings(enabled=False))
+    commands: CommandsConfig = Field(default_factory=CommandsConfig)
 
     @field_validator("channels")
     @classmethod
@@ -179,11 +181,18 @@ class StationConfig(ConfigSection):
         return self.spec
 
     def resolve_paths(self, base: Path) -> StationConfig:
-        """Make a relative storage path relative to ``base`` (the config file's folder)."""
-        path = self.storage.path.expanduser()
-        if not path.is_absolute():
-            path = (base / path).resolve()
-        return self.model_copy(update={"storage": StorageConfig(path=path)})
+        """Make relative storage and key file paths relative to ``base`` (the config's folder)."""
+        update: dict[str, Any] = {"storage": StorageConfig(path=_under(base, self.storage.path))}
+        if self.commands.keys_file is not None:
+            update["commands"] = self.commands.model_copy(
+                update={"keys_file": _under(base, self.commands.keys_file)}
+            )
+        return self.model_copy(update=update)
+
+
+def _under(base: Path, path: Path) -> Path:
+    path = path.expanduser()
+    return path if path.is_absolute() else (base / path).resolve()
 
 
 # How many weight channels a driver reads, where it is fixed: the balances and the HID scale

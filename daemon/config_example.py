@@ -151,6 +151,14 @@ topic_root = "heft"
 # password = "..."
 # [mqtt.tls]
 # ca_file = "/etc/heft/ca.pem"
+
+# Who may change the station over MQTT (tare, zero, calibration, job/spec/club selection,
+# acknowledge, re-arm): each such command is signed with an operator's key
+# ('heft keys new OPERATOR --file PATH'). Without keys they are refused, unless
+# open_bench = true says anyone who can reach the broker may command this bench.
+[commands]
+# keys_file = "/etc/heft/operator-keys"
+open_bench = false
 """
 
 _BODIES: Final = {"two_support": _TWO_SUPPORT, "lever_beam": _LEVER, "single_scale": _SINGLE}

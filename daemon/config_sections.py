@@ -276,3 +276,19 @@ class JobConfig(ConfigSection):
 
 class StorageConfig(ConfigSection):
     path: Path = Field(description="SQLite file; relative paths are from the config file")
+
+
+class CommandsConfig(ConfigSection):
+    """Who may change the station over MQTT (docs/service.md, "Operator keys")."""
+
+    keys_file: Path | None = Field(
+        default=None,
+        description="operator keys, one 'OPERATOR HEX-KEY' line each, mode 0600; relative "
+        "paths are from the config file",
+    )
+    open_bench: bool = Field(
+        default=False, description="take unsigned state-changing commands (trusted network only)"
+    )
+    window_s: float = Field(
+        default=30.0, gt=0, le=600, description="how far a signed command's time may be off"
+    )

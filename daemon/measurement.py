@@ -81,3 +81,6 @@ class Measurement(BaseModel):
     verdict: Verdict = Verdict.NO_SPEC
     checks: list[CheckResult] = Field(default_factory=list)
     software_version: str
+    operator: str | None = Field(
+        default=None, description="operator who signed the command that completed it"
+    )

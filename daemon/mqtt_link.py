@@ -32,6 +32,7 @@ import aiomqtt
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential_jitter
 
 from heft.daemon.command_api import Reply
+from heft.daemon.command_auth import CommandAuthority
 from heft.daemon.events import Event, EventBus, MeasurementCaptured, Subscription
 from heft.daemon.mqtt_client import (
     cancel_until_done,
@@ -63,6 +64,7 @@ class MqttLink:
         bus: the service's event bus (live readings, capture state, alarms, device status,
             captured measurements).
         handle_command: called with each valid command; None refuses commands.
+        authority: who may change the station; None refuses state-changing commands.
         retry_initial_s: shortest delay between failed connection attempts.
         retry_max_s: longest delay between failed connection attempts.
         clock: monotonic clock in seconds (live-reading throttle, session length).
@@ -76,6 +78,7 @@ class MqttLink:
         bus: EventBus,
         handle_command: CommandHandler | None = None,
         *,
+        authority: CommandAuthority | None = None,
         retry_initial_s: float = 0.5,
         retry_max_s: float = 30.0,
         clock: Callable[[], float] = time.monotonic,
@@ -91,7 +94,7 @@ class MqttLink:
         self._retry_max_s = retry_max_s
         self._clock = clock
         self._state = StatePublisher(self.codec, station, settings.live_max_rate_hz, clock)
-        self._commands = CommandResponder(settings, self.topics, handle_command)
+        self._commands = CommandResponder(settings, self.topics, handle_command, authority)
         self._wake = asyncio.Event()
         self._connected = asyncio.Event()
         self.published_measurements = 0  # acknowledged by the broker, this process
@@ -208,7 +211,9 @@ class MqttLink:
             log.warning("MQTT connection lost: %s", err)
         except Exception as err:
             log.exception("MQTT link error; reconnecting")
-            raise aiomqtt.MqttError(f"link error: {err!r}") from err
+            # A session that stayed up was a good one: the backoff starts over after it.
+            if started_at is None or self._clock() - started_at < STABLE_SESSION_S:
+                raise aiomqtt.MqttError(f"link error: {err!r}") from err
         finally:
             self._connected.clear()
             self._state.connected = False

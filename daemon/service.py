@@ -42,6 +42,7 @@ from heft.daemon.calibration_workflow import (
     CalibrationWorkflow,
     stored_calibrations,
 )
+from heft.daemon.command_auth import authority_from_config
 from heft.daemon.config import DeviceConfig, StationConfig
 from heft.daemon.events import (
     Alarm,
@@ -206,6 +207,7 @@ class Service:
             self.store,
             self.bus,
             self.handle_command if self.config.mqtt.commands_enabled else None,
+            authority=authority_from_config(self.config.commands),
             retry_max_s=MQTT_RETRY_MAX_WAIT_S,
         )
         await self.mqtt_link.run()

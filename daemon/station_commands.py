@@ -15,6 +15,7 @@ from heft.daemon import command_api as api
 from heft.daemon.alarms import AlarmManager, UnknownAlarmError
 from heft.daemon.calibration import CalibrationError
 from heft.daemon.calibration_workflow import CalibrationWorkflow, StepResult
+from heft.daemon.events import MeasurementCaptured
 from heft.daemon.pipeline import PipelineOutput, SelectionError, Tared
 from heft.daemon.records import ReferenceMass
 from heft.daemon.storage import StorageError
@@ -85,27 +86,37 @@ class StationCommands:
 
     async def handle(self, cmd: api.Command) -> api.Reply:
         """Carry out one command; ok=False naming what was wrong when it cannot be done."""
-        name = cmd.command
-        rid = cmd.request_id
+        echo = {"command": cmd.command, "request_id": cmd.request_id, "operator": cmd.operator}
         try:
             message, data = await self._execute(cmd)
         except (SelectionError, CalibrationError, UnknownAlarmError, UnsupportedCommand) as err:
             text = str(err) if not isinstance(err, KeyError) else f"no active alarm {err.args[0]!r}"
-            return api.Reply(ok=False, command=name, request_id=rid, message=text)
+            return api.Reply(ok=False, **echo, message=text)
         except (TransportError, StorageError) as err:
-            return api.Reply(ok=False, command=name, request_id=rid, message=str(err))
-        return api.Reply(ok=True, command=name, request_id=rid, message=message, data=data)
+            return api.Reply(ok=False, **echo, message=str(err))
+        return api.Reply(ok=True, **echo, message=message, data=data)
+
+    def _caused(self, outputs: Iterable[PipelineOutput], operator: str | None) -> None:
+        """Route a command's outputs; a measurement it completed names the operator who sent it."""
+        self._route(
+            MeasurementCaptured(measurement=o.measurement.model_copy(update={"operator": operator}))
+            if operator is not None and isinstance(o, MeasurementCaptured)
+            else o
+            for o in outputs
+        )
 
     async def _execute(self, cmd: api.Command) -> tuple[str, dict[str, Any]]:
         p = self._pipeline
+        if isinstance(cmd, api.Ping):
+            return "pong", {}
         if isinstance(cmd, api.Tare):
             tared = p.tare(self._known_device(cmd.device))
-            self._route(tared.outputs)
+            self._caused(tared.outputs, cmd.operator)
             return f"tared {', '.join(tared.channels)}", {"channels": tared.channels}
         if isinstance(cmd, api.Zero):
-            return await self._zero(cmd.device)
+            return await self._zero(cmd.device, cmd.operator)
         if isinstance(cmd, api.Rearm):
-            self._route(p.rearm())
+            self._caused(p.rearm(), cmd.operator)
             return "re-armed", {}
         if isinstance(cmd, api.SelectJob):
             p.select_job(cmd.job)
@@ -117,7 +128,7 @@ class StationCommands:
             p.set_club_id(cmd.club_id)
             return f"next club is {p.club_id}", {"club_id": p.club_id}
         if isinstance(cmd, api.SetBalancePoint):
-            self._route(p.set_balance_point(cmd.balance_point))
+            self._caused(p.set_balance_point(cmd.balance_point), cmd.operator)
             bp = p.entered_balance_point_in
             return f"balance point {bp:.2f} in set", {"balance_point_in": bp}
         if isinstance(cmd, api.AcknowledgeAlarm):
@@ -130,7 +141,7 @@ class StationCommands:
             raise SelectionError(f"no device {device!r}; devices: {', '.join(self._drivers)}")
         return device
 
-    async def _zero(self, device: str | None) -> tuple[str, dict[str, Any]]:
+    async def _zero(self, device: str | None, operator: str | None) -> tuple[str, dict[str, Any]]:
         """Zero a scale with its own command; load-cell channels are zeroed by a tare."""
         names = [self._known_device(device)] if device is not None else list(self._drivers)
         done: list[str] = []
@@ -142,7 +153,7 @@ class StationCommands:
             if driver != "beam":
                 await self._zero_scale(name)
             else:
-                self._route(self._pipeline.tare(name).outputs)
+                self._caused(self._pipeline.tare(name).outputs, operator)
             done.append(name)
         return f"zeroed {', '.join(done)}", {"devices": done}
 
@@ -150,16 +161,19 @@ class StationCommands:
         self, cmd: api.CalibrateZero | api.CalibrateSpan | api.VerifyCheckMass
     ) -> tuple[str, dict[str, Any]]:
         """A calibration step, done by the calibration part."""
+        operator = cmd.operator or ""
         if isinstance(cmd, api.CalibrateZero):
-            done: StepResult = await self._calibration.zero(cmd.channel)
+            done: StepResult = await self._calibration.zero(cmd.channel, operator)
         else:
             reference = ReferenceMass(
                 mass_g=cmd.mass_g, weight_class=cmd.weight_class, weight_id=cmd.weight_id
             )
             if isinstance(cmd, api.CalibrateSpan):
-                done = await self._calibration.span(cmd.channel, reference)
+                done = await self._calibration.span(cmd.channel, reference, operator)
             else:
-                done = await self._calibration.verify(cmd.channel, reference, cmd.tolerance_g)
+                done = await self._calibration.verify(
+                    cmd.channel, reference, cmd.tolerance_g, operator
+                )
         data: dict[str, Any] = {"calibration": done.record.model_dump(mode="json")}
         if done.record.kind == "verify":
             data["passed"] = done.record.passed

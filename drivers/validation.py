@@ -23,6 +23,14 @@ from pydantic_core import ErrorDetails
 # Longer inputs are cut in the "(got X)" part: the path already says where to look.
 _GOT_MAX_CHARS = 60
 _MESSAGE_PREFIXES = ("Value error, ", "Assertion failed, ")
+# A value under a key named like these is a secret: shown as *** whatever its type.
+_SECRET_WORDS = ("password", "passwd", "secret", "token", "passphrase", "key_hex")
+SECRET_MASK = "***"
+
+
+def is_secret_key(key: object) -> bool:
+    """True for a field whose value must never be printed (a password, a key, a token)."""
+    return isinstance(key, str) and any(word in key.lower() for word in _SECRET_WORDS)
 
 
 class FieldProblems(ValueError):
@@ -110,7 +118,7 @@ def _with_got(msg: str, e: ErrorDetails) -> str:
     got = e.get("input")
     if not e["loc"] or isinstance(got, dict | list | tuple | BaseModel):
         return msg  # the path says which
-    shown = repr(got)
+    shown = SECRET_MASK if any(is_secret_key(k) for k in e["loc"]) else repr(got)
     if e["type"] in ("value_error", "assertion_error") and shown in msg:
         return msg  # heft's own validator already quotes it
     if len(shown) > _GOT_MAX_CHARS:

@@ -13,6 +13,7 @@ from typing import Any
 
 import aiomqtt
 
+from heft.daemon.command_api import Command, Reply
 from heft.daemon.mqtt_client import cancel_until_done
 from heft.daemon.mqtt_link import MqttLink
 from heft.daemon.mqtt_settings import MqttSettings
@@ -129,3 +130,14 @@ async def running(link: MqttLink) -> AsyncIterator[asyncio.Task[None]]:
         yield task
     finally:
         await stop_task(task, "MqttLink.run")
+
+
+class RecordingHandler:
+    """Stands in for the service's command handler: records commands, answers ok."""
+
+    def __init__(self) -> None:
+        self.commands: list[Command] = []
+
+    async def __call__(self, command: Command) -> Reply:
+        self.commands.append(command)
+        return Reply(ok=True, message="done", data={"seen": len(self.commands)})

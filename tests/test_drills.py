@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 
+from tests.bench.command_flood import command_flood
 from tests.bench.drills import (
     DrillResult,
     broker_outage,
@@ -63,3 +64,14 @@ def test_fuzzed_frames_never_raise_and_never_take_a_good_frame_with_them() -> No
     assert {row[0] for row in rows} >= {"beam", "poll_balance", "stream_balance", "regex_line",
                                         "scanner", "hid_pos"}
     assert all(int(str(row[2])) > 0 for row in rows)  # bad frames were seen and counted
+
+
+async def test_nested_json_flood_neither_silences_nor_commands_the_station(
+    tmp_path: Path,
+) -> None:
+    r = await command_flood(tmp_path, 20.0)
+    assert r.accepted_anonymous == 0, r.notes  # no unsigned tare, zero, span, ... took effect
+    assert r.probes >= 50
+    assert r.answered_share >= 0.99, r.notes  # pings answered within 1 s
+    assert r.reconnects == 0, r.notes  # the flood never dropped the link
+    assert_clean(r)

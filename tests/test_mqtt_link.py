@@ -13,6 +13,7 @@ from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 
 from heft.daemon.command_api import Command, Reply
+from heft.daemon.command_auth import CommandAuthority
 from heft.daemon.events import (
     AlarmChanged,
     AlarmKind,
@@ -31,6 +32,7 @@ from heft.drivers.reading import Flag
 from tests.mqtt_broker import Broker
 from tests.mqtt_helpers import (
     Collector,
+    RecordingHandler,
     collecting,
     running,
     settings_for,
@@ -38,6 +40,8 @@ from tests.mqtt_helpers import (
     wait_until,
 )
 from tests.sample_records import make_alarm, make_measurement
+
+OPEN = CommandAuthority.open()  # these tests are about the link; signing has its own file
 
 
 @pytest.fixture
@@ -195,23 +199,12 @@ async def test_live_readings_throttled_per_channel_qos0_not_retained(
         assert first.flags == Flag.STABLE
 
 
-class RecordingHandler:
-    """Stands in for the service's command handler: records commands, answers ok."""
-
-    def __init__(self) -> None:
-        self.commands: list[Command] = []
-
-    async def __call__(self, command: Command) -> Reply:
-        self.commands.append(command)
-        return Reply(ok=True, message="done", data={"seen": len(self.commands)})
-
-
 async def test_command_round_trip_mqtt5_response_topic_and_correlation(
     broker: Broker, store: Store
 ) -> None:
     handler = RecordingHandler()
-    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler)
-    response_topic = f"{link.topics.root}/clients/qc-tablet/replies"
+    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler, authority=OPEN)
+    response_topic = f"{link.topics.cmd_reply}/qc-tablet"
     async with running(link), collecting(broker, response_topic) as (client, got):
         props = Properties(PacketTypes.PUBLISH)
         props.ResponseTopic = response_topic
@@ -237,7 +230,7 @@ async def test_command_round_trip_mqtt311_request_id_on_reply_topic(
     broker: Broker, store: Store
 ) -> None:
     handler = RecordingHandler()
-    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler)
+    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler, authority=OPEN)
     async with (
         running(link),
         collecting(broker, link.topics.cmd_reply, protocol=aiomqtt.ProtocolVersion.V311) as (
@@ -270,7 +263,7 @@ async def test_bad_command_refused_naming_the_field(
     broker: Broker, store: Store, payload: dict[str, object], names: str
 ) -> None:
     handler = RecordingHandler()
-    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler)
+    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), handler, authority=OPEN)
     async with running(link), collecting(broker, link.topics.cmd_reply) as (client, got):
         await client.publish(link.topics.cmd, json.dumps(payload), qos=1)
         await client.publish(link.topics.cmd, b"\xff not json", qos=1)
@@ -287,7 +280,7 @@ async def test_bad_command_refused_naming_the_field(
 async def test_commands_disabled_are_refused(broker: Broker, store: Store) -> None:
     handler = RecordingHandler()
     settings = settings_for(broker, commands_enabled=False)
-    link = MqttLink(settings, "bench-1", store, EventBus(), handler)
+    link = MqttLink(settings, "bench-1", store, EventBus(), handler, authority=OPEN)
     async with running(link), collecting(broker, link.topics.cmd_reply) as (client, got):
         await client.publish(link.topics.cmd, json.dumps({"command": "rearm"}), qos=1)
         await wait_until(lambda: bool(got.messages), what="the refusal")
@@ -303,7 +296,7 @@ async def test_failing_handler_gives_an_error_reply_and_the_link_stays_up(
     async def broken(command: Command) -> Reply:
         raise RuntimeError("scale did not answer")
 
-    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), broken)
+    link = MqttLink(settings_for(broker), "bench-1", store, EventBus(), broken, authority=OPEN)
     async with running(link), collecting(broker, link.topics.cmd_reply) as (client, got):
         for rid in ("a", "b"):
             await client.publish(

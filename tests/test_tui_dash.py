@@ -16,6 +16,7 @@ from pathlib import Path
 import pytest
 
 from heft.daemon.command_api import AcknowledgeAlarm, Command, Reply
+from heft.daemon.command_auth import CommandAuthority, Signer
 from heft.daemon.events import AlarmChanged, DeviceStatus, EventBus, MeasurementCaptured
 from heft.daemon.measurement import Measurement
 from heft.daemon.mqtt_link import MqttLink
@@ -35,6 +36,7 @@ from tests.mqtt_tls import PASSWORD, USER, needs_tls_tools, tls_settings
 from tests.mqtt_tls import tls_broker as tls_broker  # a fixture
 
 SIZE = (120, 40)
+OPERATOR_KEY = bytes(range(32))  # invented test key for operator "ana"
 
 
 class Station:
@@ -44,7 +46,10 @@ class Station:
         self.bus = EventBus()
         self.store = Store(db)
         self.commands: list[Command] = []
-        self.link = MqttLink(settings, name, self.store, self.bus, self.handle, retry_max_s=1)
+        self.link = MqttLink(
+            settings, name, self.store, self.bus, self.handle, retry_max_s=1,
+            authority=CommandAuthority({"ana": OPERATOR_KEY}),
+        )
 
     async def handle(self, cmd: Command) -> Reply:
         self.commands.append(cmd)
@@ -120,7 +125,10 @@ async def test_dash_with_commands_acknowledges_through_the_broker(
 ) -> None:
     settings = settings_for(broker)
     async with running(Station(settings, "bench-1", tmp_path / "s.db")) as station:
-        source = MqttSource(url(broker, settings), "bench-1", commands_enabled=True)
+        source = MqttSource(
+            url(broker, settings), "bench-1", commands_enabled=True,
+            signer=Signer("ana", OPERATOR_KEY),
+        )
         app = HeftDashboard(source, station="bench-1")
         async with app.run_test(size=SIZE) as pilot:
             await wait_until(source.connected.is_set, what="dashboard connected")
@@ -130,7 +138,10 @@ async def test_dash_with_commands_acknowledges_through_the_broker(
             await pilot.press("a")
             await wait_until(lambda: bool(station.commands), what="command at the station")
             assert station.commands[0] == AcknowledgeAlarm(
-                command="ack_alarm", key=alarm.alarm.key, request_id=station.commands[0].request_id
+                command="ack_alarm",
+                key=alarm.alarm.key,
+                request_id=station.commands[0].request_id,
+                operator="ana",  # signed with the dashboard's key, verified by the station
             )
             assert station.commands[0].request_id  # replies are matched on it
 

@@ -24,6 +24,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "calc",
     "simulate",
     "config",
+    "keys",
     "run",
     "replay",
     "export",

@@ -11,8 +11,10 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import json
 import logging
 import math
+import re
 import time
 import uuid
 from urllib.parse import unquote, urlsplit
@@ -24,6 +26,7 @@ from pydantic import SecretStr, ValidationError
 from tenacity import AsyncRetrying, RetryCallState, retry_if_exception_type, wait_exponential
 
 from heft.daemon.command_api import Command, Reply
+from heft.daemon.command_auth import Signer
 from heft.daemon.events import Alarm, AlarmChanged, Event, station_of
 from heft.daemon.mqtt_client import make_client, raise_if_cancel_requested
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
@@ -43,18 +46,27 @@ class BrokerUrlError(ValueError):
     """A --broker value that is not ``mqtt://[user[:password]@]host[:port][/topic-root]``."""
 
 
+_URL_PASSWORD = re.compile(r"(//[^/@:]*:)[^/@]*@")
+
+
+def shown_url(url: str) -> str:
+    """``url`` as an error message may print it: a password in it becomes ``***``."""
+    return _URL_PASSWORD.sub(r"\1***@", url)
+
+
 def settings_from_url(url: str) -> MqttSettings:
     """MqttSettings from ``mqtt://host:port``; ``mqtts://`` turns on TLS; a path sets the root."""
     expected = "expected mqtt://[user[:password]@]host[:port][/topic-root], e.g. mqtt://127.0.0.1:1883"
+    shown = shown_url(url)
     try:
         parts = urlsplit(url)
         port_given = parts.port
     except ValueError as err:
-        raise BrokerUrlError(f"broker URL {url!r}: {err}; {expected}") from None
+        raise BrokerUrlError(f"broker URL {shown!r}: {err}; {expected}") from None
     if parts.scheme not in _SCHEMES:
-        raise BrokerUrlError(f"broker URL {url!r}: unknown scheme {parts.scheme!r}; {expected}")
+        raise BrokerUrlError(f"broker URL {shown!r}: unknown scheme {parts.scheme!r}; {expected}")
     if not parts.hostname:
-        raise BrokerUrlError(f"broker URL {url!r}: no host; {expected}")
+        raise BrokerUrlError(f"broker URL {shown!r}: no host; {expected}")
     default_port, tls = _SCHEMES[parts.scheme]
     root = parts.path.strip("/") or "heft"
     try:
@@ -69,7 +81,7 @@ def settings_from_url(url: str) -> MqttSettings:
         )
     except ValidationError as err:
         line = problem_lines(err, MqttSettings, first_only=True)[0]
-        raise BrokerUrlError(f"broker URL {url!r}: {line}") from None
+        raise BrokerUrlError(f"broker URL {shown!r}: {line}") from None
 
 
 class AlarmSnapshots:
@@ -112,6 +124,7 @@ class MqttSource(EventSource):
             :func:`settings_from_url`).
         station: only this station; None subscribes to every station under the root.
         commands_enabled: False (the default) makes the dashboard read-only.
+        signer: signs each command with the operator's key (``heft dash --key-file``).
     """
 
     def __init__(
@@ -121,8 +134,10 @@ class MqttSource(EventSource):
         commands_enabled: bool = False,
         *,
         reply_timeout_s: float = REPLY_TIMEOUT_S,
+        signer: Signer | None = None,
     ) -> None:
         super().__init__()
+        self.signer = signer
         self.settings = settings_from_url(broker) if isinstance(broker, str) else broker
         if station is not None:
             check_level(station, "station")
@@ -256,8 +271,10 @@ class MqttSource(EventSource):
         future: asyncio.Future[Reply] = asyncio.get_running_loop().create_future()
         self._pending[request_id] = future
         try:
-            await client.publish(topics.cmd, cmd.model_dump_json(exclude_none=True), qos=1,
-                                 properties=props)
+            body = cmd.model_dump(mode="json", exclude_none=True)
+            if self.signer is not None:  # state-changing commands need an operator's signature
+                body = self.signer.sign(body)
+            await client.publish(topics.cmd, json.dumps(body), qos=1, properties=props)
             return await asyncio.wait_for(future, self.reply_timeout_s)
         except TimeoutError:
             return Reply(ok=False, command=cmd.command, request_id=request_id,

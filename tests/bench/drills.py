@@ -412,12 +412,20 @@ async def disk_full(work: Path, full_s: float) -> DrillResult:
 
 # --------------------------------------------------------------------------- runner
 
+
+async def _command_flood(work: Path, duration_s: float) -> DrillResult:
+    from tests.bench.command_flood import command_flood  # it builds on this module
+
+    return await command_flood(work, duration_s)
+
+
 SHORT: dict[str, Callable[[Path], Any]] = {
     "broker-down": lambda w: broker_outage(w, 5.0, kill=False),
     "broker-kill": lambda w: broker_outage(w, 3.0, kill=True),
     "unplug": lambda w: unplug_replug(w, 4),
     "kill": lambda w: kill_service(w, 3),
     "disk-full": lambda w: disk_full(w, 4.0),
+    "command-flood": lambda w: _command_flood(w, 20.0),
 }
 LONG: dict[str, Callable[[Path], Any]] = {
     "broker-down": lambda w: broker_outage(w, 30.0, kill=False),
@@ -426,6 +434,7 @@ LONG: dict[str, Callable[[Path], Any]] = {
     "unplug": lambda w: unplug_replug(w, 50),
     "kill": lambda w: kill_service(w, 100),
     "disk-full": lambda w: disk_full(w, 20.0),
+    "command-flood": lambda w: _command_flood(w, 60.0),
 }
 
 

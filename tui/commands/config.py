@@ -7,8 +7,10 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from heft.daemon.command_auth import KeyFileError, load_keys
 from heft.daemon.config import GEOMETRY_TYPES, ConfigError, load_config
 from heft.daemon.config_example import example_toml
+from heft.daemon.config_sections import CommandsConfig
 from heft.tui.commands._cli_io import print_error
 
 
@@ -39,12 +41,27 @@ def _check(args: argparse.Namespace) -> int:
         print_error("config", err)
         return 2
     devices = ", ".join(f"{d.name} ({d.driver})" for d in config.devices)
+    try:
+        commands = _commands_text(config.commands)
+    except KeyFileError as err:
+        print_error("config", KeyFileError(f"commands.keys_file: {err}"))
+        return 2
     print(
         f"{args.file}: ok - station {config.station}, geometry {config.geometry.type}, "
         f"devices {devices}, {len(config.specs)} spec(s), {len(config.jobs)} job(s), "
-        f"storage {config.storage.path}, mqtt {'on' if config.mqtt.enabled else 'off'}"
+        f"storage {config.storage.path}, mqtt {'on' if config.mqtt.enabled else 'off'}, "
+        f"commands {commands}"
     )
     return 0
+
+
+def _commands_text(commands: CommandsConfig) -> str:
+    """Who may change the station; raises KeyFileError for a key file the station would refuse."""
+    if commands.keys_file is not None:
+        keys = load_keys(commands.keys_file)
+        also = ", open bench" if commands.open_bench else ""
+        return f"signed ({len(keys)} operator key(s){also})"
+    return "open bench (unsigned accepted)" if commands.open_bench else "refused (no operator keys)"
 
 
 def _example(args: argparse.Namespace) -> int:

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 
 from pydantic import SecretStr
 
+from heft.daemon.command_auth import KeyFileError, Signer
 from heft.daemon.mqtt_settings import MqttSettings, TlsSettings
 from heft.daemon.mqtt_topics import TopicError, check_level
 
@@ -61,6 +62,13 @@ def register(subparsers: Any) -> None:
         "--commands",
         action="store_true",
         help="allow commands (tare, re-arm, job, acknowledge, calibrate) to the station",
+    )
+    p.add_argument(
+        "--key-file",
+        type=_readable_file,
+        metavar="FILE",
+        help="sign commands with the operator key in FILE (heft keys new); the station "
+        "refuses unsigned state-changing commands unless its bench is open",
     )
     p.add_argument("--bell", action="store_true", help="ring the terminal bell on FAIL and alarms")
     auth = p.add_argument_group("credentials and TLS (any TLS option turns TLS on)")
@@ -115,7 +123,15 @@ def build_source(args: argparse.Namespace) -> MqttSource:
         parser.error(f"--broker: {err}")
     except (OSError, UnicodeDecodeError) as err:
         parser.error(f"--password-file: {err}")
-    return MqttSource(settings, args.station, commands_enabled=args.commands)
+    signer = None
+    if args.key_file is not None:
+        if not args.commands:
+            parser.error("--key-file: signs commands; add --commands")
+        try:
+            signer = Signer.from_file(args.key_file)
+        except KeyFileError as err:
+            parser.error(f"--key-file: {err}")
+    return MqttSource(settings, args.station, commands_enabled=args.commands, signer=signer)
 
 
 def run(args: argparse.Namespace) -> int:
