@@ -28,6 +28,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "replay",
     "export",
     "report",
+    "study",
     "devices",
     "schema",
 )
