@@ -85,7 +85,7 @@ def simulated_operators(
 
 
 def larkspur_study_clubs(names: Sequence[str], seed: int) -> dict[str, Club]:
-    """Invented Larkspur Clubworks irons for the study, spread like one set (about D0 to D4)."""
+    """Invented Larkspur Clubworks irons, spread wider than one set (about C7 to D9)."""
     rng = random.Random(f"clubs:{seed}")
     return {
         name: Club(
