@@ -201,10 +201,10 @@ def run_study(
         path = Path(folder) / "beam.jsonl"
         path.write_text("\n".join(recordings["beam"]) + "\n", encoding="utf-8")
         measurements = list(replay(config, [path]))
-    return _match(plan, placements, measurements), config
+    return match_captures(plan, placements, measurements), config
 
 
-def _match(
+def match_captures(
     plan: StudyPlan, placements: list[Placement], measurements: list[Measurement]
 ) -> list[StudyTrial]:
     """Each placement's one capture, found by its capture time on the recording's clock."""

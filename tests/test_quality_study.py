@@ -27,10 +27,13 @@ from statsmodels.stats.anova import anova_lm
 from heft.daemon.quality.grr import gauge_rr
 from heft.daemon.quality.grr_plan import study_plan
 from heft.daemon.quality_study import (
+    StudyRunError,
     larkspur_study_clubs,
+    match_captures,
     run_study,
     simulated_operators,
 )
+from heft.drivers.sim.physics import Club, Placement
 from heft.tui.cli import main
 
 N, K, R = 5, 3, 2
@@ -199,3 +202,11 @@ def test_an_unwritable_csv_is_refused(tmp_path: Path, capsys: pytest.CaptureFixt
     assert code == 2
     assert "--csv" in capsys.readouterr().err
     assert not target.exists()
+
+
+def test_a_placement_without_exactly_one_capture_stops_the_study_naming_the_step() -> None:
+    plan = study_plan(2, 2, 2, seed=1, part_noun="club")
+    club = Club(total_weight_g=400.0, balance_point_in=29.0)
+    placements = [Placement(club, 5.0 * i, 5.0 * i + 3.0) for i in range(len(plan.steps))]
+    with pytest.raises(StudyRunError, match=rf"^{plan.steps[0].describe('club')}: .* got 0$"):
+        match_captures(plan, placements, [])
